@@ -1,0 +1,102 @@
+use clap::{Parser, Subcommand};
+use limen::error::{EXIT_BLOCKED, EXIT_OK};
+use limen::read::{Batch, Workspace};
+use limen::{Error, RunInfo};
+use std::io::IsTerminal;
+use std::path::Path;
+
+mod check;
+mod demo;
+mod init;
+mod issue;
+
+#[derive(Parser)]
+#[command(
+    name = "limen",
+    version,
+    about = "Limit-aware trace-metal results and certificates of analysis",
+    long_about = "limen turns instrument readings into results checked against the MDL and LOQ in force \
+                  and the regulatory or client limit, and issues the report.\n\n\
+                  Exit codes: 0 ok, 2 input error, 3 blocked."
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Evaluate a batch and show every client result and what blocks it.
+    Check(check::Args),
+    /// Issue the report files for one or more batches.
+    Issue(issue::Args),
+    /// Create a starter workspace that `limen check` accepts as is.
+    Init(init::Args),
+    /// Run the job on the embedded demo workspace.
+    Demo(demo::Args),
+}
+
+pub fn run() -> i32 {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Check(a) => check::run(a),
+        Command::Issue(a) => issue::run(a),
+        Command::Init(a) => init::run(a),
+        Command::Demo(a) => demo::run(a),
+    };
+    match result {
+        Ok(code) => code,
+        Err(e) => {
+            eprintln!("error: {e}");
+            eprintln!("hint: {}", e.hint());
+            e.exit_code()
+        }
+    }
+}
+
+/// The workspace for a batch: --workspace, else the nearest folder upward
+/// holding lab.toml.
+pub fn workspace_for(batch_dir: &Path, explicit: Option<&Path>) -> Result<Workspace, Error> {
+    let root = match explicit {
+        Some(dir) => dir.to_path_buf(),
+        None => Workspace::find(batch_dir)?,
+    };
+    Ok(Workspace::load(&root)?)
+}
+
+pub fn load(batch_dir: &Path, explicit: Option<&Path>) -> Result<(Workspace, Batch), Error> {
+    let ws = workspace_for(batch_dir, explicit)?;
+    let batch = Batch::load(batch_dir)?;
+    Ok((ws, batch))
+}
+
+/// Now, or SOURCE_DATE_EPOCH when set, so builds of a report reproduce.
+pub fn run_info() -> Result<RunInfo, Error> {
+    let secs = match std::env::var("SOURCE_DATE_EPOCH") {
+        Ok(v) => v.trim().parse::<i64>().map_err(|_| Error::Usage {
+            message: format!("SOURCE_DATE_EPOCH=`{v}` is not a whole number of seconds"),
+            hint: "set it to seconds since 1970-01-01 UTC, or unset it".into(),
+        })?,
+        Err(_) => std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map(|d| d.as_secs() as i64)
+            .unwrap_or(0),
+    };
+    let issued_at = chrono::DateTime::from_timestamp(secs, 0).ok_or_else(|| Error::Usage {
+        message: format!("SOURCE_DATE_EPOCH={secs} is out of range"),
+        hint: "set it to seconds since 1970-01-01 UTC".into(),
+    })?;
+    Ok(RunInfo {
+        issued_at,
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+    })
+}
+
+pub fn colour_stdout() -> bool {
+    std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none()
+}
+
+pub fn blocked_code(blocked: bool) -> i32 {
+    if blocked { EXIT_BLOCKED } else { EXIT_OK }
+}
+

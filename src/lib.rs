@@ -1,0 +1,20 @@
+//! limen: from a lab workspace and a client batch to limit-aware results and
+//! certificates of analysis.
+//!
+//! Phases, each a module with types between them:
+//! read → resolve → classify → report → render; `output` writes files.
+
+pub mod classify;
+pub mod error;
+pub mod numeric;
+pub mod output;
+pub mod problem;
+pub mod read;
+pub mod render;
+pub mod report;
+pub mod resolve;
+pub mod starter;
+pub mod units;
+
+pub use error::Error;
+pub use report::{Report, RunInfo};

@@ -1,0 +1,170 @@
+//! Decimal parsing and reporting rules: every concentration stays a decimal
+//! from its input text, so rounding sees the true value.
+
+use rust_decimal::{Decimal, RoundingStrategy};
+use std::str::FromStr;
+
+/// Parses a decimal from a cell. Errors carry only the problem; callers add
+/// the file, line and field.
+pub fn parse_decimal(text: &str) -> Result<Decimal, String> {
+    let t = text.trim();
+    if t.is_empty() {
+        return Err("empty; a number is required".into());
+    }
+    let lower = t.to_ascii_lowercase();
+    if t.starts_with('<') || t.starts_with('>') || lower == "nd" || lower == "n.d." || lower == "bdl"
+    {
+        return Err(format!(
+            "`{t}` is a reported value, not an instrument reading; give the raw reading (negative readings are valid)"
+        ));
+    }
+    if !t
+        .chars()
+        .all(|c| c.is_ascii_digit() || matches!(c, '.' | '-' | '+' | 'e' | 'E'))
+    {
+        return Err(format!("`{t}` is not a number"));
+    }
+    let parsed = if t.contains(['e', 'E']) {
+        Decimal::from_scientific(t)
+    } else {
+        Decimal::from_str(t)
+    };
+    parsed.map_err(|_| format!("`{t}` is not a number (or has more than 28 digits)"))
+}
+
+/// Exponent of the leading digit: 1234 -> 3, 0.0456 -> -2. None for zero.
+fn leading_exponent(d: Decimal) -> Option<i64> {
+    if d.is_zero() {
+        return None;
+    }
+    let mantissa = d.mantissa().unsigned_abs();
+    let digits = mantissa.ilog10() as i64 + 1;
+    Some(digits - 1 - d.scale() as i64)
+}
+
+/// Rounds to `sig` significant figures, half to even on the decimal value
+/// (ASTM E29), keeping trailing zeros in the scale: 25 -> 25.0, 0.6 -> 0.600.
+pub fn round_sig(d: Decimal, sig: u32) -> Decimal {
+    let sig = sig.max(1) as i64;
+    let Some(e) = leading_exponent(d) else {
+        let mut z = Decimal::ZERO;
+        z.rescale((sig - 1).clamp(0, 28) as u32);
+        return z;
+    };
+    let out = round_at(d, sig - 1 - e);
+    // Rounding up across a power of ten (9.995 -> 10.00) adds a digit.
+    match leading_exponent(out) {
+        Some(e2) if e2 > e => round_at(out, sig - 1 - e2),
+        _ => out,
+    }
+}
+
+fn round_at(d: Decimal, decimals: i64) -> Decimal {
+    let mut out = if decimals >= 0 {
+        let dp = decimals.min(28) as u32;
+        let mut r = d.round_dp_with_strategy(dp, RoundingStrategy::MidpointNearestEven);
+        r.rescale(dp);
+        r
+    } else {
+        let p = Decimal::from_i128_with_scale(10i128.pow((-decimals) as u32), 0);
+        let mut r = (d / p).round_dp_with_strategy(0, RoundingStrategy::MidpointNearestEven) * p;
+        r.rescale(0);
+        r
+    };
+    if out.is_zero() {
+        out.set_sign_positive(true);
+    }
+    out
+}
+
+/// Rounds up (towards positive infinity) to `sig` significant figures:
+/// used where a limit must never be understated.
+pub fn round_sig_up(d: Decimal, sig: u32) -> Decimal {
+    let sig = sig.max(1) as i64;
+    let Some(e) = leading_exponent(d) else {
+        return round_sig(d, sig as u32);
+    };
+    let decimals = sig - 1 - e;
+    let out = if decimals >= 0 {
+        let dp = decimals.min(28) as u32;
+        let mut r = d.round_dp_with_strategy(dp, RoundingStrategy::ToPositiveInfinity);
+        r.rescale(dp);
+        r
+    } else {
+        let p = Decimal::from_i128_with_scale(10i128.pow((-decimals) as u32), 0);
+        let mut r = (d / p).round_dp_with_strategy(0, RoundingStrategy::ToPositiveInfinity) * p;
+        r.rescale(0);
+        r
+    };
+    match leading_exponent(out) {
+        Some(e2) if e2 > e => round_sig(out, sig as u32),
+        _ => out,
+    }
+}
+
+/// Plain text of an exact decimal without meaningless trailing zeros.
+pub fn plain(d: Decimal) -> String {
+    let n = d.normalize();
+    if n.is_zero() { "0".into() } else { n.to_string() }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn d(s: &str) -> Decimal {
+        parse_decimal(s).unwrap()
+    }
+
+    // ASTM E29, rounding method: a 5 followed only by zeros rounds to the even digit.
+    #[test]
+    fn astm_e29_half_even_examples() {
+        assert_eq!(round_sig(d("1.235"), 3).to_string(), "1.24");
+        assert_eq!(round_sig(d("1.245"), 3).to_string(), "1.24");
+        assert_eq!(round_sig(d("1.2451"), 3).to_string(), "1.25");
+        assert_eq!(round_sig(d("2.35"), 2).to_string(), "2.4");
+        assert_eq!(round_sig(d("2.45"), 2).to_string(), "2.4");
+        assert_eq!(round_sig(d("2.450001"), 2).to_string(), "2.5");
+    }
+
+    // Significant-figure convention (ASTM E29): trailing zeros are significant and kept.
+    #[test]
+    fn trailing_zeros_are_kept() {
+        assert_eq!(round_sig(d("25"), 3).to_string(), "25.0");
+        assert_eq!(round_sig(d("0.6"), 3).to_string(), "0.600");
+        assert_eq!(round_sig(d("12345"), 3).to_string(), "12300");
+        assert_eq!(round_sig(d("0.0004567"), 2).to_string(), "0.00046");
+        assert_eq!(round_sig(d("0"), 3).to_string(), "0.00");
+    }
+
+    #[test]
+    fn rounding_across_a_power_of_ten_keeps_the_digit_count() {
+        assert_eq!(round_sig(d("9.996"), 3).to_string(), "10.0");
+        assert_eq!(round_sig(d("99.96"), 3).to_string(), "100");
+        assert_eq!(round_sig(d("-0.0999"), 2).to_string(), "-0.10");
+    }
+
+    #[test]
+    fn negative_values_round_on_their_magnitude() {
+        assert_eq!(round_sig(d("-1.235"), 3).to_string(), "-1.24");
+        assert_eq!(round_sig(d("-0.05"), 3).to_string(), "-0.0500");
+    }
+
+    #[test]
+    fn round_up_never_understates() {
+        assert_eq!(round_sig_up(d("0.1231"), 3).to_string(), "0.124");
+        assert_eq!(round_sig_up(d("0.123"), 3).to_string(), "0.123");
+        assert_eq!(round_sig_up(d("9.991"), 3).to_string(), "10.0");
+        assert_eq!(round_sig_up(d("12301"), 3).to_string(), "12400");
+    }
+
+    #[test]
+    fn reported_values_are_refused_as_readings() {
+        for bad in ["<0.5", "ND", "> 100", "nd", "1,5", "abc", ""] {
+            assert!(parse_decimal(bad).is_err(), "{bad}");
+        }
+        assert_eq!(d("-0.012").to_string(), "-0.012");
+        assert_eq!(d("1.5e-3"), d("0.0015"));
+        assert_eq!(d(" 2.50 ").to_string(), "2.50");
+    }
+}

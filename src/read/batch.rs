@@ -1,0 +1,390 @@
+//! A client batch: batch.toml (who, what, when) and its results CSV.
+
+use super::csvtable::{Col, opt, read_file, read_rows, req};
+use super::error::{Loc, ReadError};
+use super::lab::DecisionRule;
+use crate::units::{Dimension, Unit};
+use chrono::NaiveDate;
+use rust_decimal::Decimal;
+use serde::Deserialize;
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Kind {
+    Sample,
+    MethodBlank,
+    Lcs,
+    MatrixSpike,
+    MatrixSpikeDup,
+    Duplicate,
+    Ccv,
+    Ccb,
+}
+
+impl Kind {
+    pub const ALL: [Kind; 8] = [
+        Kind::Sample,
+        Kind::MethodBlank,
+        Kind::Lcs,
+        Kind::MatrixSpike,
+        Kind::MatrixSpikeDup,
+        Kind::Duplicate,
+        Kind::Ccv,
+        Kind::Ccb,
+    ];
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Kind::Sample => "sample",
+            Kind::MethodBlank => "method-blank",
+            Kind::Lcs => "lcs",
+            Kind::MatrixSpike => "matrix-spike",
+            Kind::MatrixSpikeDup => "matrix-spike-dup",
+            Kind::Duplicate => "duplicate",
+            Kind::Ccv => "ccv",
+            Kind::Ccb => "ccb",
+        }
+    }
+
+    pub fn parse(text: &str) -> Option<Kind> {
+        let t = text.trim().to_ascii_lowercase();
+        Kind::ALL.into_iter().find(|k| k.name() == t)
+    }
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ManifestFile {
+    batch: String,
+    report: String,
+    client_name: String,
+    client_address: String,
+    client_contact: String,
+    received_on: toml::Spanned<toml::Value>,
+    decision_rule: Option<DecisionRule>,
+    results: String,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Manifest {
+    pub batch: String,
+    pub report: String,
+    pub client_name: String,
+    pub client_address: String,
+    pub client_contact: String,
+    pub received_on: NaiveDate,
+    pub decision_rule: Option<DecisionRule>,
+    pub results: String,
+}
+
+impl Manifest {
+    pub fn parse(file: &str, text: &str) -> Result<Manifest, ReadError> {
+        let m: ManifestFile = super::toml_util::parse(file, text)?;
+        let received_on = super::toml_util::date(file, text, "received_on", &m.received_on)?;
+        for (key, value) in [("batch", &m.batch), ("report", &m.report), ("results", &m.results)] {
+            if value.trim().is_empty() {
+                let line = text
+                    .lines()
+                    .position(|l| l.trim_start().starts_with(key))
+                    .map(|i| i as u64 + 1)
+                    .unwrap_or(1);
+                return Err(ReadError::field(
+                    Loc::new(file, line, key),
+                    "empty; a value is required",
+                    format!("give the batch's `{key}`"),
+                ));
+            }
+        }
+        if !m
+            .report
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
+            || m.report.starts_with('.')
+        {
+            let line = text
+                .lines()
+                .position(|l| l.trim_start().starts_with("report"))
+                .map(|i| i as u64 + 1)
+                .unwrap_or(1);
+            return Err(ReadError::field(
+                Loc::new(file, line, "report"),
+                format!("`{}` cannot name a report file", m.report),
+                "use letters, digits, '-', '_' and '.' only (it becomes the file name)",
+            ));
+        }
+        Ok(Manifest {
+            batch: m.batch,
+            report: m.report,
+            client_name: m.client_name,
+            client_address: m.client_address,
+            client_contact: m.client_contact,
+            received_on,
+            decision_rule: m.decision_rule,
+            results: m.results,
+        })
+    }
+}
+
+pub const COLUMNS: &[Col] = &[
+    req("lab_id"),
+    opt("client_id"),
+    opt("description"),
+    req("kind"),
+    req("analyte"),
+    req("matrix"),
+    req("method"),
+    req("reading"),
+    req("reading_unit"),
+    opt("dilution"),
+    opt("mass_g"),
+    opt("volume_ml"),
+    req("analyzed_on"),
+    opt("spec"),
+    opt("uncertainty_pct"),
+    opt("spike_added"),
+    opt("parent_id"),
+];
+
+const LAB_ID: usize = 0;
+const CLIENT_ID: usize = 1;
+const DESCRIPTION: usize = 2;
+const KIND: usize = 3;
+const ANALYTE: usize = 4;
+const MATRIX: usize = 5;
+const METHOD: usize = 6;
+const READING: usize = 7;
+const READING_UNIT: usize = 8;
+const DILUTION: usize = 9;
+const MASS: usize = 10;
+const VOLUME: usize = 11;
+const ANALYZED: usize = 12;
+const SPEC: usize = 13;
+const UNCERTAINTY: usize = 14;
+const SPIKE: usize = 15;
+const PARENT: usize = 16;
+
+/// One instrument result as the analyst exported it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ResultRow {
+    pub file: String,
+    pub line: u64,
+    pub lab_id: String,
+    pub client_id: String,
+    pub description: String,
+    pub kind: Kind,
+    pub analyte: String,
+    pub matrix: String,
+    pub method: String,
+    pub reading: Decimal,
+    pub reading_unit: Unit,
+    pub dilution: Decimal,
+    pub mass_g: Option<Decimal>,
+    pub volume_ml: Option<Decimal>,
+    pub analyzed_on: NaiveDate,
+    pub spec: Option<String>,
+    pub uncertainty_pct: Option<Decimal>,
+    pub spike_added: Option<Decimal>,
+    pub parent_id: Option<String>,
+}
+
+impl ResultRow {
+    pub fn loc(&self, field: &str) -> Loc {
+        Loc::new(&self.file, self.line, field)
+    }
+}
+
+fn non_empty(s: &str) -> Option<String> {
+    if s.is_empty() { None } else { Some(s.to_string()) }
+}
+
+pub fn parse_results(file: &str, bytes: &[u8]) -> Result<Vec<ResultRow>, ReadError> {
+    let mut rows = Vec::new();
+    let mut seen: HashMap<(String, String, Kind), u64> = HashMap::new();
+    read_rows(file, bytes, COLUMNS, |r| {
+        let kind_text = r.required(KIND)?;
+        let kind = Kind::parse(kind_text).ok_or_else(|| {
+            ReadError::field(
+                r.loc(KIND),
+                format!("unknown kind `{kind_text}`"),
+                format!(
+                    "kinds: {}",
+                    Kind::ALL.map(|k| k.name()).join(", ")
+                ),
+            )
+        })?;
+        let lab_id = r.required(LAB_ID)?.to_string();
+        let analyte = r.required(ANALYTE)?.to_string();
+        let dup_key = (lab_id.clone(), analyte.to_lowercase(), kind);
+        if let Some(first) = seen.get(&dup_key) {
+            return Err(ReadError::field(
+                r.loc(LAB_ID),
+                format!(
+                    "{lab_id} / {analyte} / {} appears again (first on line {first})",
+                    kind.name()
+                ),
+                "each lab id has one result per analyte and kind; remove the repeat or give a re-run its own lab id",
+            ));
+        }
+        seen.insert(dup_key, r.line);
+        let reading_unit = r.unit(READING_UNIT)?;
+        let dilution = r.opt_positive(DILUTION)?.unwrap_or(Decimal::ONE);
+        let mass_g = r.opt_positive(MASS)?;
+        let volume_ml = r.opt_positive(VOLUME)?;
+        if mass_g.is_some() {
+            if volume_ml.is_none() {
+                return Err(ReadError::field(
+                    r.loc(VOLUME),
+                    "empty, but mass_g is given",
+                    "a solid sample needs the final digest volume in mL",
+                ));
+            }
+            if reading_unit.dimension() != Dimension::MassConcentration {
+                return Err(ReadError::field(
+                    r.loc(READING_UNIT),
+                    format!("{reading_unit} is a mass fraction, but a solid sample's reading is of its digest"),
+                    "give the reading as read on the instrument (µg/L, mg/L, ng/mL or µg/mL)",
+                ));
+            }
+        }
+        let uncertainty_pct = r.opt_decimal(UNCERTAINTY)?;
+        if let Some(u) = uncertainty_pct {
+            if u < Decimal::ZERO || u >= Decimal::ONE_HUNDRED {
+                return Err(ReadError::field(
+                    r.loc(UNCERTAINTY),
+                    format!("{u} % is outside 0–100"),
+                    "give the expanded uncertainty (k = 2) as a percentage of the result",
+                ));
+            }
+        }
+        rows.push(ResultRow {
+            file: file.to_string(),
+            line: r.line,
+            lab_id,
+            client_id: r.text(CLIENT_ID),
+            description: r.text(DESCRIPTION),
+            kind,
+            analyte,
+            matrix: r.required(MATRIX)?.to_string(),
+            method: r.required(METHOD)?.to_string(),
+            reading: r.decimal(READING)?,
+            reading_unit,
+            dilution,
+            mass_g,
+            volume_ml,
+            analyzed_on: r.date(ANALYZED)?,
+            spec: non_empty(r.get(SPEC)),
+            uncertainty_pct,
+            spike_added: r.opt_decimal(SPIKE)?,
+            parent_id: non_empty(r.get(PARENT)),
+        });
+        Ok(())
+    })?;
+    Ok(rows)
+}
+
+/// A batch folder as read: the manifest, its files' bytes and the rows.
+#[derive(Debug, Clone)]
+pub struct Batch {
+    pub dir: PathBuf,
+    pub manifest_file: String,
+    pub manifest_text: String,
+    pub manifest: Manifest,
+    pub results_file: String,
+    pub results_bytes: Vec<u8>,
+    pub rows: Vec<ResultRow>,
+}
+
+impl Batch {
+    pub fn load(dir: &Path) -> Result<Batch, ReadError> {
+        let manifest_path = dir.join("batch.toml");
+        let manifest_file = manifest_path.display().to_string();
+        let manifest_text = String::from_utf8(read_file(&manifest_path)?).map_err(|_| {
+            ReadError::field(
+                Loc::file(&manifest_file),
+                "not valid UTF-8 text",
+                "save the file as UTF-8",
+            )
+        })?;
+        let manifest = Manifest::parse(&manifest_file, &manifest_text)?;
+        let results_path = dir.join(&manifest.results);
+        let results_file = results_path.display().to_string();
+        let results_bytes = read_file(&results_path)?;
+        let rows = parse_results(&results_file, &results_bytes)?;
+        Ok(Batch {
+            dir: dir.to_path_buf(),
+            manifest_file,
+            manifest_text,
+            manifest,
+            results_file,
+            results_bytes,
+            rows,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const HEAD: &str = "lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on\n";
+
+    fn rows(body: &str) -> Result<Vec<ResultRow>, ReadError> {
+        parse_results("r.csv", format!("{HEAD}{body}").as_bytes())
+    }
+
+    #[test]
+    fn reads_a_solid_and_a_liquid() {
+        let r = rows("S1,sample,Pb,paint,6010D,50,ug/L,1,0.100,50,2026-11-13\nS2,sample,Pb,leachate,6020B,-0.02,ug/L,,,,2026-11-13\n")
+            .unwrap();
+        assert_eq!(r[0].mass_g, Some(Decimal::new(100, 3)));
+        assert_eq!(r[1].dilution, Decimal::ONE);
+        assert_eq!(r[1].reading, Decimal::new(-2, 2));
+        assert_eq!(r[1].line, 3);
+    }
+
+    #[test]
+    fn bad_cells_are_named() {
+        let cases = [
+            ("S1,sample,Pb,paint,6010D,<0.5,ug/L,1,0.1,50,2026-11-13\n", "field `reading`"),
+            ("S1,sample,Pb,paint,6010D,ND,ug/L,1,0.1,50,2026-11-13\n", "field `reading`"),
+            ("S1,sample,Pb,paint,6010D,5,ug/L,1,0,50,2026-11-13\n", "field `mass_g`"),
+            ("S1,sample,Pb,paint,6010D,5,ug/L,-2,0.1,50,2026-11-13\n", "field `dilution`"),
+            ("S1,sample,Pb,paint,6010D,5,ppt,1,0.1,50,2026-11-13\n", "field `reading_unit`"),
+            ("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,,2026-11-13\n", "field `volume_ml`"),
+            ("S1,sample,Pb,paint,6010D,5,mg/kg,1,0.1,50,2026-11-13\n", "field `reading_unit`"),
+            ("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,13/11/2026\n", "field `analyzed_on`"),
+            ("S1,blank,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\n", "field `kind`"),
+        ];
+        for (body, field) in cases {
+            let e = rows(body).unwrap_err().to_string();
+            assert!(e.starts_with(&format!("r.csv:2: {field}")), "{body} -> {e}");
+        }
+    }
+
+    #[test]
+    fn a_repeated_result_is_refused() {
+        let e = rows("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\nS1,sample,pb,paint,6010D,6,ug/L,1,0.1,50,2026-11-13\n")
+            .unwrap_err()
+            .to_string();
+        assert!(e.starts_with("r.csv:3: field `lab_id`"), "{e}");
+        assert!(e.contains("first on line 2"), "{e}");
+        // The same lab id as a duplicate QC row is a different result.
+        rows("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\nS1,duplicate,Pb,paint,6010D,6,ug/L,1,0.1,50,2026-11-13\n")
+            .unwrap();
+    }
+
+    #[test]
+    fn manifest_dates_as_toml_or_text() {
+        let base = "batch='B'\nreport='R-1'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nresults='r.csv'\n";
+        let m = Manifest::parse("b.toml", &format!("{base}received_on=2026-11-20\n")).unwrap();
+        assert_eq!(m.received_on, NaiveDate::from_ymd_opt(2026, 11, 20).unwrap());
+        let m = Manifest::parse("b.toml", &format!("{base}received_on='2026-11-20'\n")).unwrap();
+        assert_eq!(m.received_on, NaiveDate::from_ymd_opt(2026, 11, 20).unwrap());
+        let e = Manifest::parse("b.toml", &format!("{base}received_on='20 Nov'\n")).unwrap_err();
+        assert!(e.to_string().starts_with("b.toml:7: field `received_on`"), "{e}");
+        let e = Manifest::parse("b.toml", &format!("{base}received_on=2026-11-20\nreport_to='x'\n"))
+            .unwrap_err();
+        assert!(e.to_string().starts_with("b.toml:8:"), "{e}");
+    }
+}

@@ -1,0 +1,287 @@
+//! One reader for every CSV file we take: header row, columns in any order,
+//! UTF-8 with or without BOM, LF or CRLF, cells trimmed.
+
+use super::error::{Loc, ReadError};
+use chrono::NaiveDate;
+use rust_decimal::Decimal;
+
+/// A column this file takes.
+pub struct Col {
+    pub name: &'static str,
+    pub required: bool,
+}
+
+pub const fn req(name: &'static str) -> Col {
+    Col {
+        name,
+        required: true,
+    }
+}
+
+pub const fn opt(name: &'static str) -> Col {
+    Col {
+        name,
+        required: false,
+    }
+}
+
+/// One data row, with its columns addressed by their index in the `Col` list.
+pub struct Row<'a> {
+    pub file: &'a str,
+    pub line: u64,
+    record: &'a csv::StringRecord,
+    map: &'a [Option<usize>],
+    cols: &'a [Col],
+}
+
+impl<'a> Row<'a> {
+    pub fn get(&self, col: usize) -> &'a str {
+        match self.map[col] {
+            Some(i) => self.record.get(i).unwrap_or("").trim(),
+            None => "",
+        }
+    }
+
+    pub fn loc(&self, col: usize) -> Loc {
+        Loc::new(self.file, self.line, self.cols[col].name)
+    }
+
+    pub fn text(&self, col: usize) -> String {
+        self.get(col).to_string()
+    }
+
+    pub fn required(&self, col: usize) -> Result<&'a str, ReadError> {
+        let v = self.get(col);
+        if v.is_empty() {
+            return Err(ReadError::field(
+                self.loc(col),
+                "empty; a value is required",
+                format!("fill in `{}` on this row", self.cols[col].name),
+            ));
+        }
+        Ok(v)
+    }
+
+    pub fn decimal(&self, col: usize) -> Result<Decimal, ReadError> {
+        self.required(col)?;
+        crate::numeric::parse_decimal(self.get(col)).map_err(|problem| {
+            ReadError::field(
+                self.loc(col),
+                problem,
+                "write a plain decimal number such as 12.5 or -0.03",
+            )
+        })
+    }
+
+    pub fn opt_decimal(&self, col: usize) -> Result<Option<Decimal>, ReadError> {
+        if self.get(col).is_empty() {
+            Ok(None)
+        } else {
+            self.decimal(col).map(Some)
+        }
+    }
+
+    /// A decimal that must be greater than zero when present.
+    pub fn opt_positive(&self, col: usize) -> Result<Option<Decimal>, ReadError> {
+        let v = self.opt_decimal(col)?;
+        if let Some(x) = v {
+            if x <= Decimal::ZERO {
+                return Err(ReadError::field(
+                    self.loc(col),
+                    format!("{x} must be greater than zero"),
+                    format!("`{}` must be a positive number", self.cols[col].name),
+                ));
+            }
+        }
+        Ok(v)
+    }
+
+    pub fn date(&self, col: usize) -> Result<NaiveDate, ReadError> {
+        let v = self.required(col)?;
+        parse_date(v).ok_or_else(|| {
+            ReadError::field(
+                self.loc(col),
+                format!("`{v}` is not a date"),
+                "write dates as ISO 8601, YYYY-MM-DD (e.g. 2026-11-13)",
+            )
+        })
+    }
+
+    pub fn unit(&self, col: usize) -> Result<crate::units::Unit, ReadError> {
+        let v = self.required(col)?;
+        crate::units::Unit::parse(v).ok_or_else(|| {
+            ReadError::field(
+                self.loc(col),
+                format!("unknown unit `{v}`"),
+                format!("units limen knows: {}", crate::units::Unit::accepted()),
+            )
+        })
+    }
+}
+
+pub fn parse_date(text: &str) -> Option<NaiveDate> {
+    NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").ok()
+}
+
+fn norm_header(h: &str) -> String {
+    h.trim().to_ascii_lowercase()
+}
+
+/// Reads `bytes` as the CSV file `file` with columns `cols`, calling `each`
+/// for every data row in file order.
+pub fn read_rows(
+    file: &str,
+    bytes: &[u8],
+    cols: &[Col],
+    mut each: impl FnMut(&Row<'_>) -> Result<(), ReadError>,
+) -> Result<(), ReadError> {
+    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+    let names = || cols.iter().map(|c| c.name.to_string()).collect::<Vec<_>>();
+    if bytes.iter().all(|b| b.is_ascii_whitespace()) {
+        return Err(ReadError::Empty {
+            file: file.to_string(),
+            expected: names(),
+        });
+    }
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(false)
+        .from_reader(bytes);
+    // The csv crate's own line count drifts on CRLF files, so lines are
+    // counted from byte offsets.
+    let line_of = |byte: u64| -> u64 {
+        let mut end = (byte as usize).min(bytes.len());
+        while end < bytes.len() && matches!(bytes[end], b'\r' | b'\n') {
+            end += 1;
+        }
+        bytes[..end].iter().filter(|b| **b == b'\n').count() as u64 + 1
+    };
+    let csv_err = |e: csv::Error| ReadError::Csv {
+        file: file.to_string(),
+        line: e.position().map(|p| line_of(p.byte())).unwrap_or(1),
+        message: match e.kind() {
+            csv::ErrorKind::Utf8 { .. } => "not valid UTF-8 text".into(),
+            csv::ErrorKind::UnequalLengths {
+                expected_len, len, ..
+            } => format!("{len} cells where the header has {expected_len}"),
+            _ => e.to_string(),
+        },
+    };
+    let header = reader.headers().map_err(csv_err)?.clone();
+    let mut map: Vec<Option<usize>> = vec![None; cols.len()];
+    let mut unknown = Vec::new();
+    for (i, h) in header.iter().enumerate() {
+        let h = norm_header(h);
+        match cols.iter().position(|c| c.name == h) {
+            Some(c) if map[c].is_some() => {
+                return Err(ReadError::field(
+                    Loc::new(file, 1, cols[c].name),
+                    "column appears twice in the header",
+                    "keep one column of each name",
+                ));
+            }
+            Some(c) => map[c] = Some(i),
+            None if h.is_empty() => unknown.push("(blank header cell)".to_string()),
+            None => unknown.push(h),
+        }
+    }
+    if !unknown.is_empty() {
+        return Err(ReadError::UnknownColumns {
+            file: file.to_string(),
+            columns: unknown,
+            known: names(),
+        });
+    }
+    let missing: Vec<String> = cols
+        .iter()
+        .zip(&map)
+        .filter(|(c, m)| c.required && m.is_none())
+        .map(|(c, _)| c.name.to_string())
+        .collect();
+    if !missing.is_empty() {
+        return Err(ReadError::MissingColumns {
+            file: file.to_string(),
+            columns: missing,
+        });
+    }
+    let mut record = csv::StringRecord::new();
+    let (mut seen_byte, mut line) = (0usize, 1u64);
+    while reader.read_record(&mut record).map_err(csv_err)? {
+        let start = record.position().map(|p| p.byte() as usize).unwrap_or(seen_byte);
+        let mut start = start.clamp(seen_byte, bytes.len());
+        // On CRLF files the reported start can sit on the previous line's end.
+        while start < bytes.len() && matches!(bytes[start], b'\r' | b'\n') {
+            start += 1;
+        }
+        line += bytes[seen_byte..start].iter().filter(|b| **b == b'\n').count() as u64;
+        seen_byte = start;
+        if record.iter().all(|c| c.trim().is_empty()) {
+            continue;
+        }
+        let row = Row {
+            file,
+            line,
+            record: &record,
+            map: &map,
+            cols,
+        };
+        each(&row)?;
+    }
+    Ok(())
+}
+
+pub fn read_file(path: &std::path::Path) -> Result<Vec<u8>, ReadError> {
+    std::fs::read(path).map_err(|source| ReadError::Io {
+        file: path.display().to_string(),
+        source,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const COLS: &[Col] = &[req("a"), opt("b")];
+
+    fn collect(bytes: &[u8]) -> Result<Vec<(u64, String, String)>, ReadError> {
+        let mut out = Vec::new();
+        read_rows("t.csv", bytes, COLS, |r| {
+            out.push((r.line, r.text(0), r.text(1)));
+            Ok(())
+        })?;
+        Ok(out)
+    }
+
+    #[test]
+    fn bom_crlf_any_order_and_missing_optional() {
+        let rows = collect(b"\xEF\xBB\xBFb,A\r\nx, 1 \r\ny,2\r\n").unwrap();
+        assert_eq!(rows[0], (2, "1".into(), "x".into()));
+        assert_eq!(rows[1], (3, "2".into(), "y".into()));
+        let rows = collect(b"a\n5\n").unwrap();
+        assert_eq!(rows[0], (2, "5".into(), "".into()));
+    }
+
+    #[test]
+    fn header_errors_name_the_columns() {
+        let e = collect(b"b,c\n1,2\n").unwrap_err();
+        match e {
+            ReadError::UnknownColumns { columns, .. } => assert_eq!(columns, vec!["c"]),
+            other => panic!("{other}"),
+        }
+        let e = collect(b"b\n1\n").unwrap_err();
+        assert_eq!(e.to_string(), "t.csv:1: missing column(s): a");
+        assert!(matches!(collect(b"").unwrap_err(), ReadError::Empty { .. }));
+        assert!(matches!(
+            collect(b"a,a\n1,2\n").unwrap_err(),
+            ReadError::Field { .. }
+        ));
+    }
+
+    #[test]
+    fn ragged_rows_and_bad_utf8_report_their_line() {
+        let e = collect(b"a,b\n1,2\n3\n").unwrap_err();
+        assert_eq!(e.to_string(), "t.csv:3: malformed CSV: 1 cells where the header has 2");
+        let e = collect(b"a\n\xff\n").unwrap_err();
+        assert!(e.to_string().starts_with("t.csv:2: malformed CSV: not valid UTF-8"));
+    }
+}

@@ -1,0 +1,143 @@
+//! lab.toml: who the lab is and how it reports.
+
+use super::error::ReadError;
+use serde::Deserialize;
+use std::collections::BTreeMap;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum DecisionRule {
+    /// Simple acceptance: the measured value itself against the limit.
+    Simple,
+    /// ILAC-G8:09/2019 guard band with w = U (k = 2).
+    Guarded,
+}
+
+impl DecisionRule {
+    pub fn name(self) -> &'static str {
+        match self {
+            DecisionRule::Simple => "simple",
+            DecisionRule::Guarded => "guarded",
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Compare {
+    Unrounded,
+    Reported,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum NotDetectedStyle {
+    LessThan,
+    Nd,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+pub enum PageSize {
+    A4,
+    Letter,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct LabFile {
+    name: String,
+    address: String,
+    accreditation: Option<String>,
+    signatory: String,
+    signatory_role: Option<String>,
+    significant_figures: Option<u32>,
+    decision_rule: Option<DecisionRule>,
+    compare: Option<Compare>,
+    not_detected_style: Option<NotDetectedStyle>,
+    page_size: Option<PageSize>,
+    #[serde(default)]
+    methods: BTreeMap<String, String>,
+}
+
+#[derive(Debug, Clone)]
+pub struct Lab {
+    pub name: String,
+    pub address: String,
+    pub accreditation: Option<String>,
+    pub signatory: String,
+    pub signatory_role: String,
+    pub significant_figures: u32,
+    pub decision_rule: DecisionRule,
+    pub compare: Compare,
+    pub not_detected_style: NotDetectedStyle,
+    pub page_size: PageSize,
+    /// Method id (as used in the register) -> description for certificates.
+    pub methods: BTreeMap<String, String>,
+}
+
+impl Lab {
+    pub fn parse(file: &str, text: &str) -> Result<Lab, ReadError> {
+        let f: LabFile = super::toml_util::parse(file, text)?;
+        let significant_figures = f.significant_figures.unwrap_or(3);
+        if !(1..=10).contains(&significant_figures) {
+            let line = text
+                .lines()
+                .position(|l| l.trim_start().starts_with("significant_figures"))
+                .map(|i| i as u64 + 1)
+                .unwrap_or(1);
+            return Err(ReadError::field(
+                super::Loc::new(file, line, "significant_figures"),
+                format!("{significant_figures} is out of range"),
+                "use a whole number from 1 to 10 (3 is usual)",
+            ));
+        }
+        Ok(Lab {
+            name: f.name,
+            address: f.address,
+            accreditation: f.accreditation.filter(|a| !a.trim().is_empty()),
+            signatory: f.signatory,
+            signatory_role: f
+                .signatory_role
+                .unwrap_or_else(|| "Authorised signatory".into()),
+            significant_figures,
+            decision_rule: f.decision_rule.unwrap_or(DecisionRule::Simple),
+            compare: f.compare.unwrap_or(Compare::Unrounded),
+            not_detected_style: f.not_detected_style.unwrap_or(NotDetectedStyle::LessThan),
+            page_size: f.page_size.unwrap_or(PageSize::A4),
+            methods: f.methods,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn defaults_apply() {
+        let lab = Lab::parse("lab.toml", "name='L'\naddress='A'\nsignatory='S'\n").unwrap();
+        assert_eq!(lab.significant_figures, 3);
+        assert_eq!(lab.decision_rule, DecisionRule::Simple);
+        assert_eq!(lab.compare, Compare::Unrounded);
+        assert_eq!(lab.not_detected_style, NotDetectedStyle::LessThan);
+        assert_eq!(lab.page_size, PageSize::A4);
+    }
+
+    #[test]
+    fn errors_carry_the_line() {
+        let e = Lab::parse(
+            "lab.toml",
+            "name='L'\naddress='A'\nsignatory='S'\ndecision_rule='strict'\n",
+        )
+        .unwrap_err();
+        assert!(e.to_string().starts_with("lab.toml:4:"), "{e}");
+        let e = Lab::parse("lab.toml", "name='L'\naddress='A'\nsignatry='S'\n").unwrap_err();
+        assert!(e.to_string().starts_with("lab.toml:3:"), "{e}");
+        let e = Lab::parse(
+            "lab.toml",
+            "name='L'\naddress='A'\nsignatory='S'\nsignificant_figures = 0\n",
+        )
+        .unwrap_err();
+        assert!(e.to_string().starts_with("lab.toml:4: field `significant_figures`"), "{e}");
+    }
+}

@@ -1,0 +1,108 @@
+//! Phase 1: read the workspace (lab, register, specs) and a batch, checking
+//! every cell; nothing downstream sees unchecked text.
+
+pub mod batch;
+pub mod csvtable;
+pub mod error;
+pub mod lab;
+pub mod register;
+pub mod specs;
+mod toml_util;
+
+pub use batch::{Batch, Kind, Manifest, ResultRow};
+pub use error::{Loc, ReadError};
+pub use lab::{Compare, DecisionRule, Lab, NotDetectedStyle, PageSize};
+pub use register::{InForce, LimitRow, Register};
+pub use specs::{SpecLookup, SpecRow, Specs};
+
+use std::path::{Path, PathBuf};
+
+/// The lab's standing files.
+#[derive(Debug, Clone)]
+pub struct Workspace {
+    pub root: PathBuf,
+    pub lab_text: String,
+    pub lab: Lab,
+    pub register: Register,
+    pub specs: Specs,
+}
+
+impl Workspace {
+    pub fn load(root: &Path) -> Result<Workspace, ReadError> {
+        let lab_path = root.join("lab.toml");
+        let lab_file = lab_path.display().to_string();
+        let lab_text = String::from_utf8(csvtable::read_file(&lab_path)?).map_err(|_| {
+            ReadError::field(Loc::file(&lab_file), "not valid UTF-8 text", "save the file as UTF-8")
+        })?;
+        let lab = Lab::parse(&lab_file, &lab_text)?;
+        let limits = root.join("limits.csv");
+        let register = Register::parse(&limits.display().to_string(), &csvtable::read_file(&limits)?)?;
+        let specs_path = root.join("specs.csv");
+        let specs = Specs::parse(
+            &specs_path.display().to_string(),
+            &csvtable::read_file(&specs_path)?,
+        )?;
+        Ok(Workspace {
+            root: root.to_path_buf(),
+            lab_text,
+            lab,
+            register,
+            specs,
+        })
+    }
+
+    /// Searches upward from `start` for the folder holding lab.toml.
+    pub fn find(start: &Path) -> Result<PathBuf, ReadError> {
+        let abs = std::path::absolute(start).unwrap_or_else(|_| start.to_path_buf());
+        let mut here: Option<&Path> = Some(abs.as_path());
+        while let Some(dir) = here {
+            if dir.join("lab.toml").is_file() {
+                // Keep paths as the user gave them where that still works.
+                return Ok(relative_to_start(start, &abs, dir));
+            }
+            here = dir.parent();
+        }
+        Err(ReadError::NoWorkspace {
+            start: start.display().to_string(),
+        })
+    }
+}
+
+fn relative_to_start(start: &Path, abs_start: &Path, found: &Path) -> PathBuf {
+    let mut rel = start.to_path_buf();
+    let mut cur = abs_start;
+    while cur != found {
+        match cur.parent() {
+            Some(p) => {
+                cur = p;
+                rel.push("..");
+            }
+            None => return found.to_path_buf(),
+        }
+    }
+    if rel.as_os_str().is_empty() {
+        PathBuf::from(".")
+    } else {
+        normalize(&rel)
+    }
+}
+
+/// Folds `a/b/..` so error messages show short paths.
+fn normalize(p: &Path) -> PathBuf {
+    let mut out: Vec<std::path::Component> = Vec::new();
+    for c in p.components() {
+        match c {
+            std::path::Component::ParentDir
+                if matches!(out.last(), Some(std::path::Component::Normal(_))) =>
+            {
+                out.pop();
+            }
+            std::path::Component::CurDir if !out.is_empty() => {}
+            c => out.push(c),
+        }
+    }
+    if out.is_empty() {
+        return PathBuf::from(".");
+    }
+    out.iter().collect()
+}

@@ -1,0 +1,105 @@
+//! The terminal view of a report for `limen check`: an aligned table of the
+//! client results, then what blocks the batch.
+
+use crate::classify::Verdict;
+use crate::numeric::plain;
+use crate::report::Report;
+
+const HEAD: [&str; 7] = ["lab id", "analyte", "result", "unit", "state", "limit", "verdict"];
+
+fn paint(text: &str, verdict: Option<Verdict>, colour: bool) -> String {
+    if !colour {
+        return text.to_string();
+    }
+    let code = match verdict {
+        Some(Verdict::Pass) => "32",
+        Some(Verdict::Fail) => "1;31",
+        Some(Verdict::ConditionalPass | Verdict::ConditionalFail | Verdict::Inconclusive) => "33",
+        None => return text.to_string(),
+    };
+    format!("\x1b[{code}m{text}\x1b[0m")
+}
+
+fn width(s: &str) -> usize {
+    s.chars().count()
+}
+
+pub fn render(report: &Report, colour: bool) -> String {
+    let h = &report.header;
+    let mut out = format!(
+        "{} rev {} · batch {} · {} · decision rule: {}\n\n",
+        h.report,
+        h.revision,
+        h.batch,
+        h.client_name,
+        h.decision_rule.name()
+    );
+    let cells: Vec<[String; 7]> = report
+        .rows
+        .iter()
+        .map(|r| {
+            [
+                r.lab_id.clone(),
+                r.analyte.clone(),
+                r.reported.clone(),
+                r.unit.symbol().to_string(),
+                r.state.name().to_string(),
+                match (&r.spec_limit, &r.spec) {
+                    (Some(l), Some(s)) => format!("{} ({s})", plain(*l)),
+                    _ => String::new(),
+                },
+                r.verdict.map(|v| v.name().to_string()).unwrap_or_default(),
+            ]
+        })
+        .collect();
+    let mut widths = HEAD.map(width);
+    for row in &cells {
+        for (w, c) in widths.iter_mut().zip(row) {
+            *w = (*w).max(width(c));
+        }
+    }
+    let line = |cols: [&str; 7], verdict: Option<Verdict>| {
+        let mut s = String::new();
+        for (i, c) in cols.iter().enumerate() {
+            let pad = widths[i] - width(c);
+            // Results are numbers: right-align them so the digits line up.
+            if i == 2 {
+                s.push_str(&" ".repeat(pad));
+                s.push_str(c);
+            } else if i == 6 {
+                s.push_str(&paint(c, verdict, colour));
+            } else {
+                s.push_str(c);
+                s.push_str(&" ".repeat(pad));
+            }
+            if i + 1 < cols.len() {
+                s.push_str("  ");
+            }
+        }
+        s.trim_end().to_string() + "\n"
+    };
+    out.push_str(&line(HEAD, None));
+    out.push_str(&line(widths.map(|w| "─".repeat(w)).each_ref().map(|s| s.as_str()), None));
+    for (row, r) in cells.iter().zip(&report.rows) {
+        out.push_str(&line(row.each_ref().map(|s| s.as_str()), r.verdict));
+    }
+    if report.rows.is_empty() {
+        out.push_str("(no client results)\n");
+    }
+    out.push('\n');
+    if report.problems.is_empty() {
+        out.push_str(&format!(
+            "{} client result(s); no blocking problems: the batch can be issued.\n",
+            report.rows.len()
+        ));
+    } else {
+        out.push_str(&format!(
+            "BLOCKED: {} problem(s) must be resolved before this batch is issued:\n",
+            report.problems.len()
+        ));
+        for p in &report.problems {
+            out.push_str(&format!("  - {p}\n    hint: {}\n", p.hint));
+        }
+    }
+    out
+}

@@ -1,0 +1,255 @@
+//! Phase 4: the report model. Everything a renderer shows is decided here,
+//! as text and decimals; renderers only lay it out.
+
+use crate::classify::{self, Comparison, State, Verdict, VerdictError};
+use crate::numeric::round_sig;
+use crate::problem::{Problem, ProblemKind};
+use crate::read::{
+    Batch, Compare, DecisionRule, Kind, Loc, NotDetectedStyle, PageSize, ResultRow, Workspace,
+};
+use crate::resolve::{self, Resolution, ResolveError};
+use crate::units::Unit;
+use chrono::{DateTime, NaiveDate, Utc};
+use rust_decimal::Decimal;
+
+/// What varies between runs, passed in so outputs are reproducible.
+#[derive(Debug, Clone)]
+pub struct RunInfo {
+    pub issued_at: DateTime<Utc>,
+    pub tool_version: String,
+}
+
+#[derive(Debug, thiserror::Error)]
+pub enum EvalError {
+    #[error(transparent)]
+    Resolve(#[from] ResolveError),
+    #[error("{at}: the guarded decision rule needs the result's expanded uncertainty")]
+    NoUncertainty { at: Loc },
+    #[error("{at}: arithmetic overflow applying the decision rule")]
+    Overflow { at: Loc },
+}
+
+impl EvalError {
+    pub fn hint(&self) -> String {
+        match self {
+            EvalError::Resolve(e) => e.hint(),
+            EvalError::NoUncertainty { .. } => {
+                "give uncertainty_pct (U at k = 2, % of the result) for every quantified result with a limit, or use decision_rule = \"simple\"".into()
+            }
+            EvalError::Overflow { .. } => "check the numbers on this row".into(),
+        }
+    }
+}
+
+#[derive(Debug, Clone)]
+pub struct Header {
+    pub report: String,
+    pub revision: u32,
+    pub batch: String,
+    pub client_name: String,
+    pub client_address: String,
+    pub client_contact: String,
+    pub received_on: NaiveDate,
+    pub issued_at: DateTime<Utc>,
+    pub tool_version: String,
+    pub lab_name: String,
+    pub lab_address: String,
+    pub accreditation: Option<String>,
+    pub signatory: String,
+    pub signatory_role: String,
+    pub decision_rule: DecisionRule,
+    pub compare: Compare,
+    pub significant_figures: u32,
+    pub page_size: PageSize,
+}
+
+/// One client result as the certificate states it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReportRow {
+    pub lab_id: String,
+    pub client_id: String,
+    pub description: String,
+    pub analyte: String,
+    pub matrix: String,
+    pub method: String,
+    pub analyzed_on: NaiveDate,
+    /// The text a certificate prints: "< 0.600", "ND", "25.0", "> 2500".
+    pub reported: String,
+    /// The rounded value; None when not detected or over range.
+    pub value: Option<Decimal>,
+    pub value_unrounded: Decimal,
+    pub unit: Unit,
+    pub state: State,
+    pub mdl: Decimal,
+    pub loq: Decimal,
+    pub mdl_unrounded: Decimal,
+    pub loq_unrounded: Decimal,
+    pub dilution: Decimal,
+    pub spec: Option<String>,
+    pub spec_limit: Option<Decimal>,
+    pub spec_citation: String,
+    pub verdict: Option<Verdict>,
+    pub uncertainty_pct: Option<Decimal>,
+    pub qualifiers: Vec<String>,
+    /// The register row used: study id, else file:line.
+    pub limits_row: String,
+}
+
+#[derive(Debug, Clone)]
+pub struct Report {
+    pub header: Header,
+    pub rows: Vec<ReportRow>,
+    /// QC rows, kept for the QC evaluation; never client results.
+    pub qc: Vec<ResultRow>,
+    pub problems: Vec<Problem>,
+}
+
+impl Report {
+    pub fn is_blocked(&self) -> bool {
+        !self.problems.is_empty()
+    }
+}
+
+pub fn build(ws: &Workspace, batch: &Batch, revision: u32, run: &RunInfo) -> Result<Report, EvalError> {
+    let lab = &ws.lab;
+    let m = &batch.manifest;
+    let header = Header {
+        report: m.report.clone(),
+        revision,
+        batch: m.batch.clone(),
+        client_name: m.client_name.clone(),
+        client_address: m.client_address.clone(),
+        client_contact: m.client_contact.clone(),
+        received_on: m.received_on,
+        issued_at: run.issued_at,
+        tool_version: run.tool_version.clone(),
+        lab_name: lab.name.clone(),
+        lab_address: lab.address.clone(),
+        accreditation: lab.accreditation.clone(),
+        signatory: lab.signatory.clone(),
+        signatory_role: lab.signatory_role.clone(),
+        decision_rule: m.decision_rule.unwrap_or(lab.decision_rule),
+        compare: lab.compare,
+        significant_figures: lab.significant_figures,
+        page_size: lab.page_size,
+    };
+    let mut rows = Vec::with_capacity(batch.rows.len());
+    let mut qc = Vec::new();
+    let mut problems = Vec::new();
+    for row in &batch.rows {
+        if row.kind != Kind::Sample {
+            qc.push(row.clone());
+            continue;
+        }
+        match resolve::resolve(row, ws)? {
+            Resolution::Blocked(p) => problems.push(p),
+            Resolution::Resolved(r) => {
+                let out = classify_row(row, &r, &header, lab.not_detected_style)?;
+                if out.state == State::OverRange {
+                    problems.push(Problem {
+                        at: row.loc("reading"),
+                        lab_id: row.lab_id.clone(),
+                        analyte: row.analyte.clone(),
+                        kind: ProblemKind::OverRange,
+                        message: format!(
+                            "reading {} {} is above the calibrated range (highest standard {}, {})",
+                            row.reading,
+                            row.reading_unit,
+                            r.limits
+                                .upper_range
+                                .map(|(v, u)| format!("{} {u}", crate::numeric::plain(v)))
+                                .unwrap_or_default(),
+                            r.limits.reference()
+                        ),
+                        hint: "dilute the digest into the calibrated range and re-analyse".into(),
+                    });
+                }
+                rows.push(out);
+            }
+        }
+    }
+    Ok(Report {
+        header,
+        rows,
+        qc,
+        problems,
+    })
+}
+
+fn classify_row(
+    row: &ResultRow,
+    r: &resolve::Resolved<'_>,
+    header: &Header,
+    nd_style: NotDetectedStyle,
+) -> Result<ReportRow, EvalError> {
+    let sig = header.significant_figures;
+    let state = classify::state(r.value, r.mdl, r.loq, r.over_range);
+    let rounded = round_sig(r.value, sig);
+    let (mdl, loq) = (round_sig(r.mdl, sig), round_sig(r.loq, sig));
+    let verdict = match &r.spec {
+        None => None,
+        Some(spec) => {
+            let reported = header.compare == Compare::Reported;
+            let c = Comparison {
+                state,
+                value: if reported { rounded } else { r.value },
+                mdl: if reported { mdl } else { r.mdl },
+                loq: if reported { loq } else { r.loq },
+                upper: r.upper,
+                limit: spec.limit,
+                uncertainty_pct: row.uncertainty_pct,
+            };
+            Some(classify::verdict(&c, header.decision_rule).map_err(|e| match e {
+                VerdictError::NoUncertainty => EvalError::NoUncertainty {
+                    at: row.loc("uncertainty_pct"),
+                },
+                VerdictError::Overflow => EvalError::Overflow {
+                    at: row.loc("reading"),
+                },
+            })?)
+        }
+    };
+    let (reported, value) = match state {
+        State::NotDetected => (
+            match nd_style {
+                NotDetectedStyle::LessThan => format!("< {mdl}"),
+                NotDetectedStyle::Nd => "ND".to_string(),
+            },
+            None,
+        ),
+        State::OverRange => (
+            match r.upper {
+                Some(u) => format!("> {}", round_sig(u, sig)),
+                None => "over range".to_string(),
+            },
+            None,
+        ),
+        State::DetectedBelowLoq | State::Quantified => (rounded.to_string(), Some(rounded)),
+    };
+    Ok(ReportRow {
+        lab_id: row.lab_id.clone(),
+        client_id: row.client_id.clone(),
+        description: row.description.clone(),
+        analyte: row.analyte.clone(),
+        matrix: row.matrix.clone(),
+        method: row.method.clone(),
+        analyzed_on: row.analyzed_on,
+        reported,
+        value,
+        value_unrounded: r.value,
+        unit: r.unit,
+        state,
+        mdl,
+        loq,
+        mdl_unrounded: r.mdl,
+        loq_unrounded: r.loq,
+        dilution: row.dilution,
+        spec: r.spec.as_ref().map(|s| s.row.spec.clone()),
+        spec_limit: r.spec.as_ref().map(|s| s.limit),
+        spec_citation: r.spec.as_ref().map(|s| s.row.citation.clone()).unwrap_or_default(),
+        verdict,
+        uncertainty_pct: row.uncertainty_pct,
+        qualifiers: Vec::new(),
+        limits_row: r.limits.reference(),
+    })
+}

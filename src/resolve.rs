@@ -1,0 +1,341 @@
+//! Phase 2: for one result, find the limits and spec in force on its
+//! analysis date and carry reading, MDL, LOQ, upper range and limit into the
+//! sample's own unit through its mass, volume and dilution.
+
+use crate::problem::{Problem, ProblemKind};
+use crate::read::{InForce, LimitRow, Loc, ResultRow, SpecLookup, SpecRow, Workspace};
+use crate::units::{Dimension, Unit, convert};
+use rust_decimal::Decimal;
+
+#[derive(Debug, thiserror::Error)]
+pub enum ResolveError {
+    #[error("{at}: {problem}")]
+    Units {
+        at: Loc,
+        problem: String,
+        hint: String,
+    },
+    #[error("{at}: arithmetic overflow computing {what}")]
+    Overflow { at: Loc, what: &'static str },
+}
+
+impl ResolveError {
+    pub fn hint(&self) -> String {
+        match self {
+            ResolveError::Units { hint, .. } => hint.clone(),
+            ResolveError::Overflow { .. } => {
+                "a number on this row is far outside any real measurement; check it".into()
+            }
+        }
+    }
+}
+
+#[derive(Debug, Clone)]
+pub struct ResolvedSpec<'w> {
+    pub row: &'w SpecRow,
+    /// The limit in the result's unit.
+    pub limit: Decimal,
+}
+
+/// Everything a result needs to be classified, in the result's unit.
+#[derive(Debug, Clone)]
+pub struct Resolved<'w> {
+    pub limits: &'w LimitRow,
+    pub unit: Unit,
+    pub value: Decimal,
+    pub mdl: Decimal,
+    pub loq: Decimal,
+    /// The highest calibration standard carried into sample units.
+    pub upper: Option<Decimal>,
+    pub over_range: bool,
+    pub spec: Option<ResolvedSpec<'w>>,
+}
+
+pub enum Resolution<'w> {
+    Resolved(Resolved<'w>),
+    Blocked(Problem),
+}
+
+fn overflow(row: &ResultRow, what: &'static str) -> ResolveError {
+    ResolveError::Overflow {
+        at: row.loc("reading"),
+        what,
+    }
+}
+
+/// The unit a result is reported in: mg/kg for a solid (mass given), the
+/// reading's own unit for a liquid.
+pub fn result_unit(row: &ResultRow) -> Unit {
+    if row.mass_g.is_some() {
+        Unit::MgPerKg
+    } else {
+        row.reading_unit
+    }
+}
+
+/// Carries a reading-level quantity (reading, digest MDL, upper range) into
+/// the sample's unit: C = x × dilution × volume_ml / mass_g for a solid,
+/// C = x × dilution for a liquid.
+pub fn reading_to_sample(row: &ResultRow, x: Decimal, x_unit: Unit) -> Option<Option<Decimal>> {
+    let diluted = x.checked_mul(row.dilution)?;
+    match (row.mass_g, row.volume_ml) {
+        (Some(m), Some(v)) => {
+            if x_unit.dimension() != Dimension::MassConcentration {
+                return Some(None);
+            }
+            // µg/L × mL / g = µg/kg; / 1000 = mg/kg.
+            let num = diluted.checked_mul(x_unit.base_factor())?.checked_mul(v)?;
+            let den = m.checked_mul(Decimal::ONE_THOUSAND)?;
+            Some(Some(num.checked_div(den)?))
+        }
+        _ => Some(convert(diluted, x_unit, row.reading_unit)),
+    }
+}
+
+/// A register limit in mass-fraction units, scaled for this sample:
+/// MDL_s = MDL × dilution × (nominal_mass_g / mass_g) × (volume_ml / nominal_volume_ml).
+fn fraction_to_sample(row: &ResultRow, limits: &LimitRow, x: Decimal) -> Option<Option<Decimal>> {
+    let mut num = x.checked_mul(row.dilution)?;
+    let mut den = Decimal::ONE;
+    if let (Some(nominal), Some(m)) = (limits.nominal_mass_g, row.mass_g) {
+        num = num.checked_mul(nominal)?;
+        den = den.checked_mul(m)?;
+    }
+    if let (Some(nominal), Some(v)) = (limits.nominal_volume_ml, row.volume_ml) {
+        num = num.checked_mul(v)?;
+        den = den.checked_mul(nominal)?;
+    }
+    let scaled = num.checked_div(den)?;
+    Some(convert(scaled, limits.unit, result_unit(row)))
+}
+
+fn limit_to_sample(row: &ResultRow, limits: &LimitRow, x: Decimal) -> Option<Option<Decimal>> {
+    match limits.unit.dimension() {
+        Dimension::MassFraction => fraction_to_sample(row, limits, x),
+        Dimension::MassConcentration => reading_to_sample(row, x, limits.unit),
+    }
+}
+
+fn unit_mismatch(row: &ResultRow, limits: &LimitRow, what: &str) -> ResolveError {
+    ResolveError::Units {
+        at: Loc::new(&limits.file, limits.line, "unit"),
+        problem: format!(
+            "{what} in {} cannot apply to {} ({} result in {})",
+            limits.unit,
+            row.lab_id,
+            if row.mass_g.is_some() { "a solid" } else { "a liquid" },
+            result_unit(row)
+        ),
+        hint: format!(
+            "a liquid result needs register limits in a concentration unit; a solid needs mass_g and volume_ml on {}:{}",
+            row.file, row.line
+        ),
+    }
+}
+
+pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>, ResolveError> {
+    let limits = match ws
+        .register
+        .in_force(&row.analyte, &row.matrix, &row.method, row.analyzed_on)
+    {
+        InForce::Row(r) => r,
+        InForce::NoRow => {
+            return Ok(Resolution::Blocked(Problem {
+                at: row.loc("analyte"),
+                lab_id: row.lab_id.clone(),
+                analyte: row.analyte.clone(),
+                kind: ProblemKind::MissingLimits,
+                message: format!(
+                    "no limits in {} for {} / {} / {}",
+                    ws.register.file, row.analyte, row.matrix, row.method
+                ),
+                hint: "add the MDL and LOQ row from the method's study to the register, or correct the analyte, matrix or method".into(),
+            }));
+        }
+        InForce::NotYet(first) => {
+            return Ok(Resolution::Blocked(Problem {
+                at: row.loc("analyzed_on"),
+                lab_id: row.lab_id.clone(),
+                analyte: row.analyte.clone(),
+                kind: ProblemKind::MissingLimits,
+                message: format!(
+                    "analysed {}, before the first limits for {} / {} / {} took effect ({first})",
+                    row.analyzed_on, row.analyte, row.matrix, row.method
+                ),
+                hint: "check the analysis date; the register holds no limit in force on that day".into(),
+            }));
+        }
+    };
+    let unit = result_unit(row);
+    let value = reading_to_sample(row, row.reading, row.reading_unit)
+        .ok_or_else(|| overflow(row, "the result"))?
+        .ok_or_else(|| unit_mismatch(row, limits, "the reading"))?;
+    let mdl = limit_to_sample(row, limits, limits.mdl)
+        .ok_or_else(|| overflow(row, "the sample MDL"))?
+        .ok_or_else(|| unit_mismatch(row, limits, "the MDL"))?;
+    let loq = limit_to_sample(row, limits, limits.loq)
+        .ok_or_else(|| overflow(row, "the sample LOQ"))?
+        .ok_or_else(|| unit_mismatch(row, limits, "the LOQ"))?;
+    let (upper, over_range) = match limits.upper_range {
+        None => (None, false),
+        Some((upper, upper_unit)) => {
+            let upper_at_reading = convert(upper, upper_unit, row.reading_unit).ok_or_else(|| {
+                ResolveError::Units {
+                    at: Loc::new(&limits.file, limits.line, "upper_range_unit"),
+                    problem: format!(
+                        "upper range in {upper_unit} cannot be compared with a reading in {}",
+                        row.reading_unit
+                    ),
+                    hint: "give the upper range in the same kind of unit the instrument reads".into(),
+                }
+            })?;
+            let in_sample = reading_to_sample(row, upper, upper_unit)
+                .ok_or_else(|| overflow(row, "the upper range"))?
+                .ok_or_else(|| unit_mismatch(row, limits, "the upper range"))?;
+            (Some(in_sample), row.reading > upper_at_reading)
+        }
+    };
+    let spec = match &row.spec {
+        None => None,
+        Some(name) => match ws
+            .specs
+            .in_force(name, &row.analyte, &row.matrix, row.analyzed_on)
+        {
+            SpecLookup::Row(spec_row) => {
+                let limit = convert(spec_row.limit, spec_row.unit, unit).ok_or_else(|| {
+                    ResolveError::Units {
+                        at: Loc::new(&spec_row.file, spec_row.line, "unit"),
+                        problem: format!(
+                            "spec {} is in {}, but {} is reported in {unit}",
+                            spec_row.spec, spec_row.unit, row.lab_id
+                        ),
+                        hint: "a limit for a solid is a mass fraction (mg/kg, %); for a liquid, a concentration (µg/L, mg/L)".into(),
+                    }
+                })?;
+                Some(ResolvedSpec {
+                    row: spec_row,
+                    limit,
+                })
+            }
+            other => {
+                let message = match other {
+                    SpecLookup::UnknownSpec => {
+                        format!("spec `{name}` is not in {}", ws.specs.file)
+                    }
+                    SpecLookup::NotYet(first) => format!(
+                        "spec `{name}` sets no limit for {} in force on {} (its first is from {first})",
+                        row.analyte, row.analyzed_on
+                    ),
+                    _ => format!(
+                        "spec `{name}` sets no limit for {} in {}",
+                        row.analyte, row.matrix
+                    ),
+                };
+                return Ok(Resolution::Blocked(Problem {
+                    at: row.loc("spec"),
+                    lab_id: row.lab_id.clone(),
+                    analyte: row.analyte.clone(),
+                    kind: ProblemKind::MissingSpec,
+                    message,
+                    hint: "correct the spec id, or add the limit to specs.csv with its citation".into(),
+                }));
+            }
+        },
+    };
+    Ok(Resolution::Resolved(Resolved {
+        limits,
+        unit,
+        value,
+        mdl,
+        loq,
+        upper,
+        over_range,
+        spec,
+    }))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::read::{Kind, Register};
+    use chrono::NaiveDate;
+    use std::str::FromStr;
+
+    fn d(s: &str) -> Decimal {
+        Decimal::from_str(s).unwrap()
+    }
+
+    fn solid(reading: &str, dilution: &str, mass: &str, volume: &str) -> ResultRow {
+        ResultRow {
+            file: "r.csv".into(),
+            line: 2,
+            lab_id: "S1".into(),
+            client_id: String::new(),
+            description: String::new(),
+            kind: Kind::Sample,
+            analyte: "Pb".into(),
+            matrix: "paint".into(),
+            method: "6010D".into(),
+            reading: d(reading),
+            reading_unit: Unit::UgPerL,
+            dilution: d(dilution),
+            mass_g: Some(d(mass)),
+            volume_ml: Some(d(volume)),
+            analyzed_on: NaiveDate::from_ymd_opt(2026, 11, 13).unwrap(),
+            spec: None,
+            uncertainty_pct: None,
+            spike_added: None,
+            parent_id: None,
+        }
+    }
+
+    // Digest-to-sample calculation as in EPA SW-846 Method 3050B, Section 12
+    // (from memory): mg/kg = C × V / W, C in mg/L of the digest, V in L, W in kg.
+    // Worked: 50 µg/L = 0.050 mg/L, V = 0.050 L, W = 0.000100 kg
+    // -> 0.050 × 0.050 / 0.000100 = 25.0 mg/kg.
+    #[test]
+    fn digest_to_sample_worked_example() {
+        let row = solid("50", "1", "0.100", "50");
+        assert_eq!(reading_to_sample(&row, row.reading, row.reading_unit), Some(Some(d("25"))));
+        // Dilution multiplies the result; mg/L readings scale by 1000.
+        let row = solid("50", "10", "0.100", "50");
+        assert_eq!(reading_to_sample(&row, d("0.050"), Unit::MgPerL), Some(Some(d("250"))));
+    }
+
+    fn register(unit: &str, nominal: &str) -> Register {
+        Register::parse(
+            "limits.csv",
+            format!(
+                "analyte,matrix,method,unit,mdl,loq,effective_from,nominal_mass_g,nominal_volume_ml\n\
+                 Pb,paint,6010D,{unit},2,6,2025-01-01,{nominal}\n"
+            )
+            .as_bytes(),
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn mass_fraction_limits_scale_with_mass_volume_and_dilution() {
+        let reg = register("mg/kg", "0.250,50");
+        let row = solid("1", "5", "0.100", "50");
+        // 2 × 5 × (0.250 / 0.100) × (50 / 50) = 25 mg/kg
+        assert_eq!(fraction_to_sample(&row, &reg.rows[0], d("2")), Some(Some(d("25"))));
+        // A blank nominal leaves its ratio at 1.
+        let reg = register("mg/kg", ",");
+        assert_eq!(fraction_to_sample(&row, &reg.rows[0], d("2")), Some(Some(d("10"))));
+    }
+
+    #[test]
+    fn digest_limits_convert_like_a_reading() {
+        let reg = register("ug/L", ",");
+        let row = solid("1", "2", "0.100", "50");
+        // 2 µg/L × 2 × 50 mL / 0.100 g / 1000 = 2 mg/kg
+        assert_eq!(limit_to_sample(&row, &reg.rows[0], d("2")), Some(Some(d("2"))));
+    }
+
+    #[test]
+    fn overflow_is_reported_not_panicked() {
+        let row = solid("79228162514264337593543950335", "10", "0.1", "50");
+        assert_eq!(reading_to_sample(&row, row.reading, row.reading_unit), None);
+    }
+}
