@@ -144,7 +144,10 @@ pub fn verdict(c: &Comparison, rule: DecisionRule) -> Result<Verdict, VerdictErr
 /// pass up to L − U, conditional pass up to L, conditional fail up to L + U,
 /// fail beyond.
 pub fn guard_band(value: Decimal, limit: Decimal, uncertainty_pct: Decimal) -> Option<Verdict> {
-    let u = value.abs().checked_mul(uncertainty_pct)?.checked_div(Decimal::ONE_HUNDRED)?;
+    let u = value
+        .abs()
+        .checked_mul(uncertainty_pct)?
+        .checked_div(Decimal::ONE_HUNDRED)?;
     Some(if value <= limit.checked_sub(u)? {
         Verdict::Pass
     } else if value <= limit {
@@ -198,7 +201,10 @@ mod tests {
         // Edge: C = L − U exactly (L = 88, C = 80, U = 8) is a pass.
         assert_eq!(guard_band(d("80"), d("88"), pct), Some(Verdict::Pass));
         // Edge: C = L + U exactly (L = 99, C = 110, U = 11) is a conditional fail.
-        assert_eq!(guard_band(d("110"), d("99"), pct), Some(Verdict::ConditionalFail));
+        assert_eq!(
+            guard_band(d("110"), d("99"), pct),
+            Some(Verdict::ConditionalFail)
+        );
         assert_eq!(guard_band(d("110.0001"), d("99"), pct), Some(Verdict::Fail));
     }
 
@@ -217,17 +223,32 @@ mod tests {
     #[test]
     fn verdicts_by_state() {
         let simple = DecisionRule::Simple;
-        assert_eq!(verdict(&cmp(State::NotDetected, "1"), simple), Ok(Verdict::Pass));
+        assert_eq!(
+            verdict(&cmp(State::NotDetected, "1"), simple),
+            Ok(Verdict::Pass)
+        );
         let mut c = cmp(State::NotDetected, "1");
         c.mdl = d("333");
         assert_eq!(verdict(&c, simple), Ok(Verdict::Inconclusive));
-        assert_eq!(verdict(&cmp(State::DetectedBelowLoq, "5"), simple), Ok(Verdict::Pass));
+        assert_eq!(
+            verdict(&cmp(State::DetectedBelowLoq, "5"), simple),
+            Ok(Verdict::Pass)
+        );
         let mut c = cmp(State::DetectedBelowLoq, "5");
         c.loq = d("91");
         assert_eq!(verdict(&c, simple), Ok(Verdict::Inconclusive));
-        assert_eq!(verdict(&cmp(State::Quantified, "90"), simple), Ok(Verdict::Pass));
-        assert_eq!(verdict(&cmp(State::Quantified, "90.01"), simple), Ok(Verdict::Fail));
-        assert_eq!(verdict(&cmp(State::OverRange, "3000"), simple), Ok(Verdict::Fail));
+        assert_eq!(
+            verdict(&cmp(State::Quantified, "90"), simple),
+            Ok(Verdict::Pass)
+        );
+        assert_eq!(
+            verdict(&cmp(State::Quantified, "90.01"), simple),
+            Ok(Verdict::Fail)
+        );
+        assert_eq!(
+            verdict(&cmp(State::OverRange, "3000"), simple),
+            Ok(Verdict::Fail)
+        );
         let mut c = cmp(State::OverRange, "3000");
         c.upper = Some(d("50"));
         assert_eq!(verdict(&c, simple), Ok(Verdict::Inconclusive));

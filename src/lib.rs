@@ -6,6 +6,7 @@
 
 pub mod classify;
 pub mod error;
+pub mod fasthash;
 pub mod numeric;
 pub mod output;
 pub mod problem;

@@ -12,7 +12,11 @@ pub fn parse_decimal(text: &str) -> Result<Decimal, String> {
         return Err("empty; a number is required".into());
     }
     let lower = t.to_ascii_lowercase();
-    if t.starts_with('<') || t.starts_with('>') || lower == "nd" || lower == "n.d." || lower == "bdl"
+    if t.starts_with('<')
+        || t.starts_with('>')
+        || lower == "nd"
+        || lower == "n.d."
+        || lower == "bdl"
     {
         return Err(format!(
             "`{t}` is a reported value, not an instrument reading; give the raw reading (negative readings are valid)"
@@ -105,7 +109,11 @@ pub fn round_sig_up(d: Decimal, sig: u32) -> Decimal {
 /// Plain text of an exact decimal without meaningless trailing zeros.
 pub fn plain(d: Decimal) -> String {
     let n = d.normalize();
-    if n.is_zero() { "0".into() } else { n.to_string() }
+    if n.is_zero() {
+        "0".into()
+    } else {
+        n.to_string()
+    }
 }
 
 #[cfg(test)]

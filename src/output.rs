@@ -21,7 +21,8 @@ impl OutputError {
     pub fn hint(&self) -> String {
         match self {
             OutputError::Exists { .. } => {
-                "choose another --out folder, or move the earlier file away if it was never sent".into()
+                "choose another --out folder, or move the earlier file away if it was never sent"
+                    .into()
             }
             OutputError::Io { .. } => "check that the folder exists and is writable".into(),
         }

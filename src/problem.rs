@@ -18,7 +18,7 @@ pub enum ProblemKind {
 pub struct Problem {
     pub at: Loc,
     pub lab_id: String,
-    pub analyte: String,
+    pub analyte: std::sync::Arc<str>,
     pub kind: ProblemKind,
     pub message: String,
     pub hint: String,
@@ -26,6 +26,10 @@ pub struct Problem {
 
 impl fmt::Display for Problem {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}: {} {}: {}", self.at, self.lab_id, self.analyte, self.message)
+        write!(
+            f,
+            "{}: {} {}: {}",
+            self.at, self.lab_id, self.analyte, self.message
+        )
     }
 }

@@ -4,6 +4,7 @@
 use crate::classify::{self, Comparison, State, Verdict, VerdictError};
 use crate::numeric::round_sig;
 use crate::problem::{Problem, ProblemKind};
+use crate::read::batch::each_result;
 use crate::read::{
     Batch, Compare, DecisionRule, Kind, Loc, NotDetectedStyle, PageSize, ResultRow, Workspace,
 };
@@ -11,6 +12,7 @@ use crate::resolve::{self, Resolution, ResolveError};
 use crate::units::Unit;
 use chrono::{DateTime, NaiveDate, Utc};
 use rust_decimal::Decimal;
+use std::sync::Arc;
 
 /// What varies between runs, passed in so outputs are reproducible.
 #[derive(Debug, Clone)]
@@ -22,6 +24,8 @@ pub struct RunInfo {
 #[derive(Debug, thiserror::Error)]
 pub enum EvalError {
     #[error(transparent)]
+    Read(#[from] crate::read::ReadError),
+    #[error(transparent)]
     Resolve(#[from] ResolveError),
     #[error("{at}: the guarded decision rule needs the result's expanded uncertainty")]
     NoUncertainty { at: Loc },
@@ -32,6 +36,7 @@ pub enum EvalError {
 impl EvalError {
     pub fn hint(&self) -> String {
         match self {
+            EvalError::Read(e) => e.hint(),
             EvalError::Resolve(e) => e.hint(),
             EvalError::NoUncertainty { .. } => {
                 "give uncertainty_pct (U at k = 2, % of the result) for every quantified result with a limit, or use decision_rule = \"simple\"".into()
@@ -69,9 +74,9 @@ pub struct ReportRow {
     pub lab_id: String,
     pub client_id: String,
     pub description: String,
-    pub analyte: String,
-    pub matrix: String,
-    pub method: String,
+    pub analyte: Arc<str>,
+    pub matrix: Arc<str>,
+    pub method: Arc<str>,
     pub analyzed_on: NaiveDate,
     /// The text a certificate prints: "< 0.600", "ND", "25.0", "> 2500".
     pub reported: String,
@@ -85,14 +90,14 @@ pub struct ReportRow {
     pub mdl_unrounded: Decimal,
     pub loq_unrounded: Decimal,
     pub dilution: Decimal,
-    pub spec: Option<String>,
+    pub spec: Option<Arc<str>>,
     pub spec_limit: Option<Decimal>,
-    pub spec_citation: String,
+    pub spec_citation: Arc<str>,
     pub verdict: Option<Verdict>,
     pub uncertainty_pct: Option<Decimal>,
     pub qualifiers: Vec<String>,
     /// The register row used: study id, else file:line.
-    pub limits_row: String,
+    pub limits_row: Arc<str>,
 }
 
 #[derive(Debug, Clone)]
@@ -110,7 +115,14 @@ impl Report {
     }
 }
 
-pub fn build(ws: &Workspace, batch: &Batch, revision: u32, run: &RunInfo) -> Result<Report, EvalError> {
+/// Evaluates a batch, each result as it is read, so a report of a million
+/// rows never holds its input rows and its report rows at once.
+pub fn build(
+    ws: &Workspace,
+    batch: &Batch,
+    revision: u32,
+    run: &RunInfo,
+) -> Result<Report, EvalError> {
     let lab = &ws.lab;
     let m = &batch.manifest;
     let header = Header {
@@ -133,19 +145,19 @@ pub fn build(ws: &Workspace, batch: &Batch, revision: u32, run: &RunInfo) -> Res
         significant_figures: lab.significant_figures,
         page_size: lab.page_size,
     };
-    let mut rows = Vec::with_capacity(batch.rows.len());
+    let mut rows = Vec::with_capacity(batch.results_bytes.len() / 110);
     let mut qc = Vec::new();
     let mut problems = Vec::new();
-    for row in &batch.rows {
+    each_result(&batch.results_file, &batch.results_bytes, |row| {
         if row.kind != Kind::Sample {
-            qc.push(row.clone());
-            continue;
+            qc.push(row);
+            return Ok(());
         }
-        match resolve::resolve(row, ws)? {
+        match resolve::resolve(&row, ws)? {
             Resolution::Blocked(p) => problems.push(p),
             Resolution::Resolved(r) => {
-                let out = classify_row(row, &r, &header, lab.not_detected_style)?;
-                if out.state == State::OverRange {
+                let over_range = r.over_range;
+                if over_range {
                     problems.push(Problem {
                         at: row.loc("reading"),
                         lab_id: row.lab_id.clone(),
@@ -159,15 +171,17 @@ pub fn build(ws: &Workspace, batch: &Batch, revision: u32, run: &RunInfo) -> Res
                                 .upper_range
                                 .map(|(v, u)| format!("{} {u}", crate::numeric::plain(v)))
                                 .unwrap_or_default(),
-                            r.limits.reference()
+                            r.limits.reference.clone()
                         ),
                         hint: "dilute the digest into the calibrated range and re-analyse".into(),
                     });
                 }
-                rows.push(out);
+                rows.push(classify_row(row, &r, &header, lab.not_detected_style)?);
             }
         }
-    }
+        Ok::<(), EvalError>(())
+    })?;
+    rows.shrink_to_fit();
     Ok(Report {
         header,
         rows,
@@ -177,7 +191,7 @@ pub fn build(ws: &Workspace, batch: &Batch, revision: u32, run: &RunInfo) -> Res
 }
 
 fn classify_row(
-    row: &ResultRow,
+    row: ResultRow,
     r: &resolve::Resolved<'_>,
     header: &Header,
     nd_style: NotDetectedStyle,
@@ -199,14 +213,16 @@ fn classify_row(
                 limit: spec.limit,
                 uncertainty_pct: row.uncertainty_pct,
             };
-            Some(classify::verdict(&c, header.decision_rule).map_err(|e| match e {
-                VerdictError::NoUncertainty => EvalError::NoUncertainty {
-                    at: row.loc("uncertainty_pct"),
-                },
-                VerdictError::Overflow => EvalError::Overflow {
-                    at: row.loc("reading"),
-                },
-            })?)
+            Some(
+                classify::verdict(&c, header.decision_rule).map_err(|e| match e {
+                    VerdictError::NoUncertainty => EvalError::NoUncertainty {
+                        at: row.loc("uncertainty_pct"),
+                    },
+                    VerdictError::Overflow => EvalError::Overflow {
+                        at: row.loc("reading"),
+                    },
+                })?,
+            )
         }
     };
     let (reported, value) = match state {
@@ -227,12 +243,12 @@ fn classify_row(
         State::DetectedBelowLoq | State::Quantified => (rounded.to_string(), Some(rounded)),
     };
     Ok(ReportRow {
-        lab_id: row.lab_id.clone(),
-        client_id: row.client_id.clone(),
-        description: row.description.clone(),
-        analyte: row.analyte.clone(),
-        matrix: row.matrix.clone(),
-        method: row.method.clone(),
+        lab_id: row.lab_id,
+        client_id: row.client_id,
+        description: row.description,
+        analyte: row.analyte,
+        matrix: row.matrix,
+        method: row.method,
         analyzed_on: row.analyzed_on,
         reported,
         value,
@@ -246,10 +262,14 @@ fn classify_row(
         dilution: row.dilution,
         spec: r.spec.as_ref().map(|s| s.row.spec.clone()),
         spec_limit: r.spec.as_ref().map(|s| s.limit),
-        spec_citation: r.spec.as_ref().map(|s| s.row.citation.clone()).unwrap_or_default(),
+        spec_citation: r
+            .spec
+            .as_ref()
+            .map(|s| s.row.citation.clone())
+            .unwrap_or_else(|| Arc::from("")),
         verdict,
         uncertainty_pct: row.uncertainty_pct,
         qualifiers: Vec::new(),
-        limits_row: r.limits.reference(),
+        limits_row: r.limits.reference.clone(),
     })
 }

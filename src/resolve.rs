@@ -123,7 +123,11 @@ fn unit_mismatch(row: &ResultRow, limits: &LimitRow, what: &str) -> ResolveError
             "{what} in {} cannot apply to {} ({} result in {})",
             limits.unit,
             row.lab_id,
-            if row.mass_g.is_some() { "a solid" } else { "a liquid" },
+            if row.mass_g.is_some() {
+                "a solid"
+            } else {
+                "a liquid"
+            },
             result_unit(row)
         ),
         hint: format!(
@@ -162,7 +166,8 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
                     "analysed {}, before the first limits for {} / {} / {} took effect ({first})",
                     row.analyzed_on, row.analyte, row.matrix, row.method
                 ),
-                hint: "check the analysis date; the register holds no limit in force on that day".into(),
+                hint: "check the analysis date; the register holds no limit in force on that day"
+                    .into(),
             }));
         }
     };
@@ -179,16 +184,18 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
     let (upper, over_range) = match limits.upper_range {
         None => (None, false),
         Some((upper, upper_unit)) => {
-            let upper_at_reading = convert(upper, upper_unit, row.reading_unit).ok_or_else(|| {
-                ResolveError::Units {
-                    at: Loc::new(&limits.file, limits.line, "upper_range_unit"),
-                    problem: format!(
-                        "upper range in {upper_unit} cannot be compared with a reading in {}",
-                        row.reading_unit
-                    ),
-                    hint: "give the upper range in the same kind of unit the instrument reads".into(),
-                }
-            })?;
+            let upper_at_reading =
+                convert(upper, upper_unit, row.reading_unit).ok_or_else(|| {
+                    ResolveError::Units {
+                        at: Loc::new(&limits.file, limits.line, "upper_range_unit"),
+                        problem: format!(
+                            "upper range in {upper_unit} cannot be compared with a reading in {}",
+                            row.reading_unit
+                        ),
+                        hint: "give the upper range in the same kind of unit the instrument reads"
+                            .into(),
+                    }
+                })?;
             let in_sample = reading_to_sample(row, upper, upper_unit)
                 .ok_or_else(|| overflow(row, "the upper range"))?
                 .ok_or_else(|| unit_mismatch(row, limits, "the upper range"))?;
@@ -237,7 +244,8 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
                     analyte: row.analyte.clone(),
                     kind: ProblemKind::MissingSpec,
                     message,
-                    hint: "correct the spec id, or add the limit to specs.csv with its citation".into(),
+                    hint: "correct the spec id, or add the limit to specs.csv with its citation"
+                        .into(),
                 }));
             }
         },
@@ -296,10 +304,16 @@ mod tests {
     #[test]
     fn digest_to_sample_worked_example() {
         let row = solid("50", "1", "0.100", "50");
-        assert_eq!(reading_to_sample(&row, row.reading, row.reading_unit), Some(Some(d("25"))));
+        assert_eq!(
+            reading_to_sample(&row, row.reading, row.reading_unit),
+            Some(Some(d("25")))
+        );
         // Dilution multiplies the result; mg/L readings scale by 1000.
         let row = solid("50", "10", "0.100", "50");
-        assert_eq!(reading_to_sample(&row, d("0.050"), Unit::MgPerL), Some(Some(d("250"))));
+        assert_eq!(
+            reading_to_sample(&row, d("0.050"), Unit::MgPerL),
+            Some(Some(d("250")))
+        );
     }
 
     fn register(unit: &str, nominal: &str) -> Register {
@@ -319,10 +333,16 @@ mod tests {
         let reg = register("mg/kg", "0.250,50");
         let row = solid("1", "5", "0.100", "50");
         // 2 × 5 × (0.250 / 0.100) × (50 / 50) = 25 mg/kg
-        assert_eq!(fraction_to_sample(&row, &reg.rows[0], d("2")), Some(Some(d("25"))));
+        assert_eq!(
+            fraction_to_sample(&row, &reg.rows[0], d("2")),
+            Some(Some(d("25")))
+        );
         // A blank nominal leaves its ratio at 1.
         let reg = register("mg/kg", ",");
-        assert_eq!(fraction_to_sample(&row, &reg.rows[0], d("2")), Some(Some(d("10"))));
+        assert_eq!(
+            fraction_to_sample(&row, &reg.rows[0], d("2")),
+            Some(Some(d("10")))
+        );
     }
 
     #[test]
@@ -330,7 +350,10 @@ mod tests {
         let reg = register("ug/L", ",");
         let row = solid("1", "2", "0.100", "50");
         // 2 µg/L × 2 × 50 mL / 0.100 g / 1000 = 2 mg/kg
-        assert_eq!(limit_to_sample(&row, &reg.rows[0], d("2")), Some(Some(d("2"))));
+        assert_eq!(
+            limit_to_sample(&row, &reg.rows[0], d("2")),
+            Some(Some(d("2")))
+        );
     }
 
     #[test]

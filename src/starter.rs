@@ -97,7 +97,10 @@ pub fn lay_down(dir: &Path, files: &[(&str, &str)]) -> Result<(), crate::output:
     for (name, text) in files {
         let path = dir.join(name);
         let parent = path.parent().unwrap_or(dir);
-        let file = path.file_name().map(|f| f.to_string_lossy().into_owned()).unwrap_or_default();
+        let file = path
+            .file_name()
+            .map(|f| f.to_string_lossy().into_owned())
+            .unwrap_or_default();
         crate::output::write_new(parent, &file, text.as_bytes())?;
     }
     Ok(())

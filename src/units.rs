@@ -42,6 +42,11 @@ impl Unit {
     /// Accepts the usual spellings: `u` for the micro sign, either micro
     /// code point (U+00B5, U+03BC), and `l` or `L` for litre.
     pub fn parse(text: &str) -> Option<Unit> {
+        let text = text.trim();
+        // Exact canonical spellings first: no allocation on the common path.
+        if let Some(u) = Unit::ALL.into_iter().find(|u| u.symbol() == text) {
+            return Some(u);
+        }
         let t: String = text
             .trim()
             .chars()
@@ -140,22 +145,43 @@ mod tests {
     // 1 mg/kg = 1e-6 kg/kg; 1 µg/kg = 1e-9; 1 % = 1e-2 = 10 000 mg/kg.
     #[test]
     fn mass_fraction_factors_follow_si_prefixes() {
-        assert_eq!(convert(d("1"), Unit::Percent, Unit::MgPerKg), Some(d("10000")));
-        assert_eq!(convert(d("0.009"), Unit::Percent, Unit::MgPerKg), Some(d("90")));
+        assert_eq!(
+            convert(d("1"), Unit::Percent, Unit::MgPerKg),
+            Some(d("10000"))
+        );
+        assert_eq!(
+            convert(d("0.009"), Unit::Percent, Unit::MgPerKg),
+            Some(d("90"))
+        );
         assert_eq!(convert(d("1"), Unit::UgPerG, Unit::MgPerKg), Some(d("1")));
         assert_eq!(convert(d("1"), Unit::Ppm, Unit::MgPerKg), Some(d("1")));
-        assert_eq!(convert(d("1000"), Unit::UgPerKg, Unit::MgPerKg), Some(d("1")));
+        assert_eq!(
+            convert(d("1000"), Unit::UgPerKg, Unit::MgPerKg),
+            Some(d("1"))
+        );
         assert_eq!(convert(d("250"), Unit::Ppb, Unit::UgPerKg), Some(d("250")));
-        assert_eq!(convert(d("500"), Unit::MgPerKg, Unit::Percent), Some(d("0.05")));
+        assert_eq!(
+            convert(d("500"), Unit::MgPerKg, Unit::Percent),
+            Some(d("0.05"))
+        );
     }
 
     // SI: 1 µg/mL = 1e-6 g / 1e-3 L = 1 mg/L = 1000 µg/L; 1 ng/mL = 1 µg/L.
     #[test]
     fn mass_concentration_factors_follow_si_prefixes() {
-        assert_eq!(convert(d("1"), Unit::UgPerMl, Unit::UgPerL), Some(d("1000")));
-        assert_eq!(convert(d("3.0"), Unit::UgPerMl, Unit::MgPerL), Some(d("3.0")));
+        assert_eq!(
+            convert(d("1"), Unit::UgPerMl, Unit::UgPerL),
+            Some(d("1000"))
+        );
+        assert_eq!(
+            convert(d("3.0"), Unit::UgPerMl, Unit::MgPerL),
+            Some(d("3.0"))
+        );
         assert_eq!(convert(d("7"), Unit::NgPerMl, Unit::UgPerL), Some(d("7")));
-        assert_eq!(convert(d("2500"), Unit::UgPerL, Unit::MgPerL), Some(d("2.5")));
+        assert_eq!(
+            convert(d("2500"), Unit::UgPerL, Unit::MgPerL),
+            Some(d("2.5"))
+        );
     }
 
     #[test]

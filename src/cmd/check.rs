@@ -28,7 +28,8 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut out = std::io::stdout().lock();
     match a.format {
         Format::Table => {
-            let _ = out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes());
+            let _ =
+                out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes());
         }
         Format::Csv => {
             let _ = out.write_all(&Csv.render(&report));

@@ -27,14 +27,21 @@ fn prepare(out: &Path) -> Result<(), Error> {
         let empty = std::fs::read_dir(out).map_err(io)?.next().is_none();
         if !empty && !out.join(MARKER).is_file() {
             return Err(Error::Usage {
-                message: format!("{} exists and is not an earlier demo's folder", out.display()),
+                message: format!(
+                    "{} exists and is not an earlier demo's folder",
+                    out.display()
+                ),
                 hint: "pass --out with a new or empty folder".into(),
             });
         }
         std::fs::remove_dir_all(out).map_err(io)?;
     }
     std::fs::create_dir_all(out).map_err(io)?;
-    std::fs::write(out.join(MARKER), "written by `limen demo`; safe to delete\n").map_err(io)?;
+    std::fs::write(
+        out.join(MARKER),
+        "written by `limen demo`; safe to delete\n",
+    )
+    .map_err(io)?;
     Ok(())
 }
 

@@ -43,7 +43,12 @@ pub fn run(a: Args) -> Result<i32, Error> {
     limen::output::check_free(&a.out, &names)?;
     for (r, name) in reports.iter().zip(&names) {
         let path = limen::output::write_new(&a.out, name, &Csv.render(r))?;
-        println!("issued {} ({} results): {}", r.header.report, r.rows.len(), path.display());
+        println!(
+            "issued {} ({} results): {}",
+            r.header.report,
+            r.rows.len(),
+            path.display()
+        );
     }
     Ok(EXIT_OK)
 }

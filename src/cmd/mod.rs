@@ -99,4 +99,3 @@ pub fn colour_stdout() -> bool {
 pub fn blocked_code(blocked: bool) -> i32 {
     if blocked { EXIT_BLOCKED } else { EXIT_OK }
 }
-

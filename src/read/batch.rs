@@ -9,6 +9,7 @@ use rust_decimal::Decimal;
 use serde::Deserialize;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Kind {
@@ -82,7 +83,11 @@ impl Manifest {
     pub fn parse(file: &str, text: &str) -> Result<Manifest, ReadError> {
         let m: ManifestFile = super::toml_util::parse(file, text)?;
         let received_on = super::toml_util::date(file, text, "received_on", &m.received_on)?;
-        for (key, value) in [("batch", &m.batch), ("report", &m.report), ("results", &m.results)] {
+        for (key, value) in [
+            ("batch", &m.batch),
+            ("report", &m.report),
+            ("results", &m.results),
+        ] {
             if value.trim().is_empty() {
                 let line = text
                     .lines()
@@ -167,22 +172,22 @@ const PARENT: usize = 16;
 /// One instrument result as the analyst exported it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ResultRow {
-    pub file: String,
+    pub file: Arc<str>,
     pub line: u64,
     pub lab_id: String,
     pub client_id: String,
     pub description: String,
     pub kind: Kind,
-    pub analyte: String,
-    pub matrix: String,
-    pub method: String,
+    pub analyte: Arc<str>,
+    pub matrix: Arc<str>,
+    pub method: Arc<str>,
     pub reading: Decimal,
     pub reading_unit: Unit,
     pub dilution: Decimal,
     pub mass_g: Option<Decimal>,
     pub volume_ml: Option<Decimal>,
     pub analyzed_on: NaiveDate,
-    pub spec: Option<String>,
+    pub spec: Option<Arc<str>>,
     pub uncertainty_pct: Option<Decimal>,
     pub spike_added: Option<Decimal>,
     pub parent_id: Option<String>,
@@ -195,92 +200,135 @@ impl ResultRow {
 }
 
 fn non_empty(s: &str) -> Option<String> {
-    if s.is_empty() { None } else { Some(s.to_string()) }
+    if s.is_empty() {
+        None
+    } else {
+        Some(s.to_string())
+    }
 }
 
 pub fn parse_results(file: &str, bytes: &[u8]) -> Result<Vec<ResultRow>, ReadError> {
     let mut rows = Vec::new();
-    let mut seen: HashMap<(String, String, Kind), u64> = HashMap::new();
-    read_rows(file, bytes, COLUMNS, |r| {
-        let kind_text = r.required(KIND)?;
-        let kind = Kind::parse(kind_text).ok_or_else(|| {
-            ReadError::field(
-                r.loc(KIND),
-                format!("unknown kind `{kind_text}`"),
-                format!(
-                    "kinds: {}",
-                    Kind::ALL.map(|k| k.name()).join(", ")
-                ),
-            )
-        })?;
-        let lab_id = r.required(LAB_ID)?.to_string();
-        let analyte = r.required(ANALYTE)?.to_string();
-        let dup_key = (lab_id.clone(), analyte.to_lowercase(), kind);
-        if let Some(first) = seen.get(&dup_key) {
-            return Err(ReadError::field(
-                r.loc(LAB_ID),
-                format!(
-                    "{lab_id} / {analyte} / {} appears again (first on line {first})",
-                    kind.name()
-                ),
-                "each lab id has one result per analyte and kind; remove the repeat or give a re-run its own lab id",
-            ));
-        }
-        seen.insert(dup_key, r.line);
-        let reading_unit = r.unit(READING_UNIT)?;
-        let dilution = r.opt_positive(DILUTION)?.unwrap_or(Decimal::ONE);
-        let mass_g = r.opt_positive(MASS)?;
-        let volume_ml = r.opt_positive(VOLUME)?;
-        if mass_g.is_some() {
-            if volume_ml.is_none() {
-                return Err(ReadError::field(
-                    r.loc(VOLUME),
-                    "empty, but mass_g is given",
-                    "a solid sample needs the final digest volume in mL",
-                ));
-            }
-            if reading_unit.dimension() != Dimension::MassConcentration {
-                return Err(ReadError::field(
-                    r.loc(READING_UNIT),
-                    format!("{reading_unit} is a mass fraction, but a solid sample's reading is of its digest"),
-                    "give the reading as read on the instrument (µg/L, mg/L, ng/mL or µg/mL)",
-                ));
-            }
-        }
-        let uncertainty_pct = r.opt_decimal(UNCERTAINTY)?;
-        if let Some(u) = uncertainty_pct {
-            if u < Decimal::ZERO || u >= Decimal::ONE_HUNDRED {
-                return Err(ReadError::field(
-                    r.loc(UNCERTAINTY),
-                    format!("{u} % is outside 0–100"),
-                    "give the expanded uncertainty (k = 2) as a percentage of the result",
-                ));
-            }
-        }
-        rows.push(ResultRow {
-            file: file.to_string(),
-            line: r.line,
-            lab_id,
-            client_id: r.text(CLIENT_ID),
-            description: r.text(DESCRIPTION),
-            kind,
-            analyte,
-            matrix: r.required(MATRIX)?.to_string(),
-            method: r.required(METHOD)?.to_string(),
-            reading: r.decimal(READING)?,
-            reading_unit,
-            dilution,
-            mass_g,
-            volume_ml,
-            analyzed_on: r.date(ANALYZED)?,
-            spec: non_empty(r.get(SPEC)),
-            uncertainty_pct,
-            spike_added: r.opt_decimal(SPIKE)?,
-            parent_id: non_empty(r.get(PARENT)),
-        });
-        Ok(())
+    each_result(file, bytes, |r| {
+        rows.push(r);
+        Ok::<(), ReadError>(())
     })?;
     Ok(rows)
+}
+
+/// Hands each checked result to `each` in file order, so a large batch need
+/// not be held in memory twice.
+pub fn each_result<E: From<ReadError>>(
+    file: &str,
+    bytes: &[u8],
+    mut each: impl FnMut(ResultRow) -> Result<(), E>,
+) -> Result<(), E> {
+    let shared: Arc<str> = Arc::from(file);
+    // Key: lab id, analyte (lower case) and kind, joined by a separator that
+    // cannot occur in a trimmed cell.
+    let mut seen: HashMap<String, u64, crate::fasthash::Build> =
+        HashMap::with_capacity_and_hasher(bytes.len() / 96, Default::default());
+    // Analytes, matrices, methods and specs repeat on every row: share them.
+    let mut names: HashMap<String, Arc<str>, crate::fasthash::Build> = HashMap::default();
+    let mut intern = move |s: &str| -> Arc<str> {
+        if let Some(a) = names.get(s) {
+            return a.clone();
+        }
+        let a: Arc<str> = Arc::from(s);
+        names.insert(s.to_string(), a.clone());
+        a
+    };
+    let mut key = String::new();
+    read_rows(file, bytes, COLUMNS, |r| {
+        let mut parse = || -> Result<ResultRow, ReadError> {
+            let kind_text = r.required(KIND)?;
+            let kind = Kind::parse(kind_text).ok_or_else(|| {
+                ReadError::field(
+                    r.loc(KIND),
+                    format!("unknown kind `{kind_text}`"),
+                    format!("kinds: {}", Kind::ALL.map(|k| k.name()).join(", ")),
+                )
+            })?;
+            let lab_id = r.required(LAB_ID)?.to_string();
+            let analyte = intern(r.required(ANALYTE)?);
+            key.clear();
+            key.push_str(&lab_id);
+            key.push('\u{1f}');
+            crate::fasthash::push_lower(&mut key, &analyte);
+            key.push('\u{1f}');
+            key.push_str(kind.name());
+            if let Some(first) = seen.get(key.as_str()) {
+                return Err(ReadError::field(
+                    r.loc(LAB_ID),
+                    format!(
+                        "{lab_id} / {analyte} / {} appears again (first on line {first})",
+                        kind.name()
+                    ),
+                    "each lab id has one result per analyte and kind; remove the repeat or give a re-run its own lab id",
+                ));
+            }
+            seen.insert(key.clone(), r.line);
+            let reading_unit = r.unit(READING_UNIT)?;
+            let dilution = r.opt_positive(DILUTION)?.unwrap_or(Decimal::ONE);
+            let mass_g = r.opt_positive(MASS)?;
+            let volume_ml = r.opt_positive(VOLUME)?;
+            if mass_g.is_some() {
+                if volume_ml.is_none() {
+                    return Err(ReadError::field(
+                        r.loc(VOLUME),
+                        "empty, but mass_g is given",
+                        "a solid sample needs the final digest volume in mL",
+                    ));
+                }
+                if reading_unit.dimension() != Dimension::MassConcentration {
+                    return Err(ReadError::field(
+                        r.loc(READING_UNIT),
+                        format!(
+                            "{reading_unit} is a mass fraction, but a solid sample's reading is of its digest"
+                        ),
+                        "give the reading as read on the instrument (µg/L, mg/L, ng/mL or µg/mL)",
+                    ));
+                }
+            }
+            let uncertainty_pct = r.opt_decimal(UNCERTAINTY)?;
+            if let Some(u) = uncertainty_pct {
+                if u < Decimal::ZERO || u >= Decimal::ONE_HUNDRED {
+                    return Err(ReadError::field(
+                        r.loc(UNCERTAINTY),
+                        format!("{u} % is outside 0–100"),
+                        "give the expanded uncertainty (k = 2) as a percentage of the result",
+                    ));
+                }
+            }
+            let row = ResultRow {
+                file: shared.clone(),
+                line: r.line,
+                lab_id,
+                client_id: r.text(CLIENT_ID),
+                description: r.text(DESCRIPTION),
+                kind,
+                analyte,
+                matrix: intern(r.required(MATRIX)?),
+                method: intern(r.required(METHOD)?),
+                reading: r.decimal(READING)?,
+                reading_unit,
+                dilution,
+                mass_g,
+                volume_ml,
+                analyzed_on: r.date(ANALYZED)?,
+                spec: match r.get(SPEC) {
+                    "" => None,
+                    s => Some(intern(s)),
+                },
+                uncertainty_pct,
+                spike_added: r.opt_decimal(SPIKE)?,
+                parent_id: non_empty(r.get(PARENT)),
+            };
+            Ok(row)
+        };
+        let row = parse()?;
+        each(row)
+    })
 }
 
 /// A batch folder as read: the manifest, its files' bytes and the rows.
@@ -292,7 +340,6 @@ pub struct Batch {
     pub manifest: Manifest,
     pub results_file: String,
     pub results_bytes: Vec<u8>,
-    pub rows: Vec<ResultRow>,
 }
 
 impl Batch {
@@ -310,7 +357,6 @@ impl Batch {
         let results_path = dir.join(&manifest.results);
         let results_file = results_path.display().to_string();
         let results_bytes = read_file(&results_path)?;
-        let rows = parse_results(&results_file, &results_bytes)?;
         Ok(Batch {
             dir: dir.to_path_buf(),
             manifest_file,
@@ -318,8 +364,12 @@ impl Batch {
             manifest,
             results_file,
             results_bytes,
-            rows,
         })
+    }
+
+    /// Every result, checked; errors name file, line and field.
+    pub fn rows(&self) -> Result<Vec<ResultRow>, ReadError> {
+        parse_results(&self.results_file, &self.results_bytes)
     }
 }
 
@@ -346,15 +396,42 @@ mod tests {
     #[test]
     fn bad_cells_are_named() {
         let cases = [
-            ("S1,sample,Pb,paint,6010D,<0.5,ug/L,1,0.1,50,2026-11-13\n", "field `reading`"),
-            ("S1,sample,Pb,paint,6010D,ND,ug/L,1,0.1,50,2026-11-13\n", "field `reading`"),
-            ("S1,sample,Pb,paint,6010D,5,ug/L,1,0,50,2026-11-13\n", "field `mass_g`"),
-            ("S1,sample,Pb,paint,6010D,5,ug/L,-2,0.1,50,2026-11-13\n", "field `dilution`"),
-            ("S1,sample,Pb,paint,6010D,5,ppt,1,0.1,50,2026-11-13\n", "field `reading_unit`"),
-            ("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,,2026-11-13\n", "field `volume_ml`"),
-            ("S1,sample,Pb,paint,6010D,5,mg/kg,1,0.1,50,2026-11-13\n", "field `reading_unit`"),
-            ("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,13/11/2026\n", "field `analyzed_on`"),
-            ("S1,blank,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\n", "field `kind`"),
+            (
+                "S1,sample,Pb,paint,6010D,<0.5,ug/L,1,0.1,50,2026-11-13\n",
+                "field `reading`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,ND,ug/L,1,0.1,50,2026-11-13\n",
+                "field `reading`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,5,ug/L,1,0,50,2026-11-13\n",
+                "field `mass_g`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,5,ug/L,-2,0.1,50,2026-11-13\n",
+                "field `dilution`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,5,ppt,1,0.1,50,2026-11-13\n",
+                "field `reading_unit`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,,2026-11-13\n",
+                "field `volume_ml`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,5,mg/kg,1,0.1,50,2026-11-13\n",
+                "field `reading_unit`",
+            ),
+            (
+                "S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,13/11/2026\n",
+                "field `analyzed_on`",
+            ),
+            (
+                "S1,blank,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\n",
+                "field `kind`",
+            ),
         ];
         for (body, field) in cases {
             let e = rows(body).unwrap_err().to_string();
@@ -378,13 +455,25 @@ mod tests {
     fn manifest_dates_as_toml_or_text() {
         let base = "batch='B'\nreport='R-1'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nresults='r.csv'\n";
         let m = Manifest::parse("b.toml", &format!("{base}received_on=2026-11-20\n")).unwrap();
-        assert_eq!(m.received_on, NaiveDate::from_ymd_opt(2026, 11, 20).unwrap());
+        assert_eq!(
+            m.received_on,
+            NaiveDate::from_ymd_opt(2026, 11, 20).unwrap()
+        );
         let m = Manifest::parse("b.toml", &format!("{base}received_on='2026-11-20'\n")).unwrap();
-        assert_eq!(m.received_on, NaiveDate::from_ymd_opt(2026, 11, 20).unwrap());
+        assert_eq!(
+            m.received_on,
+            NaiveDate::from_ymd_opt(2026, 11, 20).unwrap()
+        );
         let e = Manifest::parse("b.toml", &format!("{base}received_on='20 Nov'\n")).unwrap_err();
-        assert!(e.to_string().starts_with("b.toml:7: field `received_on`"), "{e}");
-        let e = Manifest::parse("b.toml", &format!("{base}received_on=2026-11-20\nreport_to='x'\n"))
-            .unwrap_err();
+        assert!(
+            e.to_string().starts_with("b.toml:7: field `received_on`"),
+            "{e}"
+        );
+        let e = Manifest::parse(
+            "b.toml",
+            &format!("{base}received_on=2026-11-20\nreport_to='x'\n"),
+        )
+        .unwrap_err();
         assert!(e.to_string().starts_with("b.toml:8:"), "{e}");
     }
 }

@@ -119,8 +119,18 @@ impl<'a> Row<'a> {
     }
 }
 
+/// An ISO 8601 calendar date, YYYY-MM-DD, checked for a real day.
 pub fn parse_date(text: &str) -> Option<NaiveDate> {
-    NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").ok()
+    let b = text.trim().as_bytes();
+    if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
+        return None;
+    }
+    let num = |r: std::ops::Range<usize>| -> Option<u32> {
+        b[r].iter().try_fold(0u32, |acc, c| {
+            c.is_ascii_digit().then(|| acc * 10 + (c - b'0') as u32)
+        })
+    };
+    NaiveDate::from_ymd_opt(num(0..4)? as i32, num(5..7)?, num(8..10)?)
 }
 
 fn norm_header(h: &str) -> String {
@@ -129,19 +139,20 @@ fn norm_header(h: &str) -> String {
 
 /// Reads `bytes` as the CSV file `file` with columns `cols`, calling `each`
 /// for every data row in file order.
-pub fn read_rows(
+pub fn read_rows<E: From<ReadError>>(
     file: &str,
     bytes: &[u8],
     cols: &[Col],
-    mut each: impl FnMut(&Row<'_>) -> Result<(), ReadError>,
-) -> Result<(), ReadError> {
+    mut each: impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     let names = || cols.iter().map(|c| c.name.to_string()).collect::<Vec<_>>();
     if bytes.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(ReadError::Empty {
             file: file.to_string(),
             expected: names(),
-        });
+        }
+        .into());
     }
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
@@ -178,7 +189,8 @@ pub fn read_rows(
                     Loc::new(file, 1, cols[c].name),
                     "column appears twice in the header",
                     "keep one column of each name",
-                ));
+                )
+                .into());
             }
             Some(c) => map[c] = Some(i),
             None if h.is_empty() => unknown.push("(blank header cell)".to_string()),
@@ -190,7 +202,8 @@ pub fn read_rows(
             file: file.to_string(),
             columns: unknown,
             known: names(),
-        });
+        }
+        .into());
     }
     let missing: Vec<String> = cols
         .iter()
@@ -202,18 +215,25 @@ pub fn read_rows(
         return Err(ReadError::MissingColumns {
             file: file.to_string(),
             columns: missing,
-        });
+        }
+        .into());
     }
     let mut record = csv::StringRecord::new();
     let (mut seen_byte, mut line) = (0usize, 1u64);
     while reader.read_record(&mut record).map_err(csv_err)? {
-        let start = record.position().map(|p| p.byte() as usize).unwrap_or(seen_byte);
+        let start = record
+            .position()
+            .map(|p| p.byte() as usize)
+            .unwrap_or(seen_byte);
         let mut start = start.clamp(seen_byte, bytes.len());
         // On CRLF files the reported start can sit on the previous line's end.
         while start < bytes.len() && matches!(bytes[start], b'\r' | b'\n') {
             start += 1;
         }
-        line += bytes[seen_byte..start].iter().filter(|b| **b == b'\n').count() as u64;
+        line += bytes[seen_byte..start]
+            .iter()
+            .filter(|b| **b == b'\n')
+            .count() as u64;
         seen_byte = start;
         if record.iter().all(|c| c.trim().is_empty()) {
             continue;
@@ -247,7 +267,7 @@ mod tests {
         let mut out = Vec::new();
         read_rows("t.csv", bytes, COLS, |r| {
             out.push((r.line, r.text(0), r.text(1)));
-            Ok(())
+            Ok::<(), ReadError>(())
         })?;
         Ok(out)
     }
@@ -259,6 +279,28 @@ mod tests {
         assert_eq!(rows[1], (3, "2".into(), "y".into()));
         let rows = collect(b"a\n5\n").unwrap();
         assert_eq!(rows[0], (2, "5".into(), "".into()));
+    }
+
+    #[test]
+    fn dates_are_iso_calendar_dates() {
+        assert_eq!(
+            parse_date("2026-11-13"),
+            NaiveDate::from_ymd_opt(2026, 11, 13)
+        );
+        assert_eq!(
+            parse_date(" 2024-02-29 "),
+            NaiveDate::from_ymd_opt(2024, 2, 29)
+        );
+        for bad in [
+            "2026-02-29",
+            "2026-13-01",
+            "2026-1-13",
+            "13/11/2026",
+            "2026-11-1x",
+            "",
+        ] {
+            assert_eq!(parse_date(bad), None, "{bad}");
+        }
     }
 
     #[test]
@@ -280,8 +322,14 @@ mod tests {
     #[test]
     fn ragged_rows_and_bad_utf8_report_their_line() {
         let e = collect(b"a,b\n1,2\n3\n").unwrap_err();
-        assert_eq!(e.to_string(), "t.csv:3: malformed CSV: 1 cells where the header has 2");
+        assert_eq!(
+            e.to_string(),
+            "t.csv:3: malformed CSV: 1 cells where the header has 2"
+        );
         let e = collect(b"a\n\xff\n").unwrap_err();
-        assert!(e.to_string().starts_with("t.csv:2: malformed CSV: not valid UTF-8"));
+        assert!(
+            e.to_string()
+                .starts_with("t.csv:2: malformed CSV: not valid UTF-8")
+        );
     }
 }

@@ -138,6 +138,10 @@ mod tests {
             "name='L'\naddress='A'\nsignatory='S'\nsignificant_figures = 0\n",
         )
         .unwrap_err();
-        assert!(e.to_string().starts_with("lab.toml:4: field `significant_figures`"), "{e}");
+        assert!(
+            e.to_string()
+                .starts_with("lab.toml:4: field `significant_figures`"),
+            "{e}"
+        );
     }
 }

@@ -32,11 +32,18 @@ impl Workspace {
         let lab_path = root.join("lab.toml");
         let lab_file = lab_path.display().to_string();
         let lab_text = String::from_utf8(csvtable::read_file(&lab_path)?).map_err(|_| {
-            ReadError::field(Loc::file(&lab_file), "not valid UTF-8 text", "save the file as UTF-8")
+            ReadError::field(
+                Loc::file(&lab_file),
+                "not valid UTF-8 text",
+                "save the file as UTF-8",
+            )
         })?;
         let lab = Lab::parse(&lab_file, &lab_text)?;
         let limits = root.join("limits.csv");
-        let register = Register::parse(&limits.display().to_string(), &csvtable::read_file(&limits)?)?;
+        let register = Register::parse(
+            &limits.display().to_string(),
+            &csvtable::read_file(&limits)?,
+        )?;
         let specs_path = root.join("specs.csv");
         let specs = Specs::parse(
             &specs_path.display().to_string(),

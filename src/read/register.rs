@@ -55,26 +55,25 @@ pub struct LimitRow {
     pub upper_range: Option<(Decimal, Unit)>,
     pub study_id: String,
     pub note: String,
-}
-
-impl LimitRow {
     /// How a report names this row: its study id, else file:line.
-    pub fn reference(&self) -> String {
-        if self.study_id.is_empty() {
-            format!("{}:{}", self.file, self.line)
-        } else {
-            self.study_id.clone()
-        }
-    }
+    pub reference: std::sync::Arc<str>,
 }
 
 /// Case-insensitive key so `Pb` and `pb` in different files agree.
-pub fn key(analyte: &str, matrix: &str, method: &str) -> (String, String, String) {
-    (
-        analyte.trim().to_lowercase(),
-        matrix.trim().to_lowercase(),
-        method.trim().to_lowercase(),
-    )
+pub fn key_into(buf: &mut String, analyte: &str, matrix: &str, method: &str) {
+    buf.clear();
+    for (i, part) in [analyte, matrix, method].into_iter().enumerate() {
+        if i > 0 {
+            buf.push('\u{1f}');
+        }
+        crate::fasthash::push_lower(buf, part.trim());
+    }
+}
+
+pub fn key(analyte: &str, matrix: &str, method: &str) -> String {
+    let mut k = String::new();
+    key_into(&mut k, analyte, matrix, method);
+    k
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -91,7 +90,7 @@ pub struct Register {
     pub file: String,
     pub rows: Vec<LimitRow>,
     /// Row indices per key, ordered by effective date.
-    index: HashMap<(String, String, String), Vec<usize>>,
+    index: HashMap<String, Vec<usize>, crate::fasthash::Build>,
 }
 
 impl Register {
@@ -148,6 +147,11 @@ impl Register {
                 upper_range,
                 study_id: r.text(STUDY),
                 note: r.text(NOTE),
+                reference: if r.get(STUDY).is_empty() {
+                    format!("{file}:{}", r.line).into()
+                } else {
+                    r.get(STUDY).into()
+                },
             });
             Ok(())
         })?;
@@ -155,7 +159,7 @@ impl Register {
     }
 
     pub fn from_rows(file: &str, rows: Vec<LimitRow>) -> Result<Register, ReadError> {
-        let mut index: HashMap<_, Vec<usize>> = HashMap::new();
+        let mut index: HashMap<String, Vec<usize>, crate::fasthash::Build> = HashMap::default();
         for (i, row) in rows.iter().enumerate() {
             index
                 .entry(key(&row.analyte, &row.matrix, &row.method))
@@ -186,8 +190,18 @@ impl Register {
     }
 
     /// The row in force on `date` for this analyte, matrix and method.
-    pub fn in_force(&self, analyte: &str, matrix: &str, method: &str, date: NaiveDate) -> InForce<'_> {
-        let Some(list) = self.index.get(&key(analyte, matrix, method)) else {
+    pub fn in_force(
+        &self,
+        analyte: &str,
+        matrix: &str,
+        method: &str,
+        date: NaiveDate,
+    ) -> InForce<'_> {
+        let found = crate::fasthash::with_buffer(|buf| {
+            key_into(buf, analyte, matrix, method);
+            self.index.get(buf.as_str())
+        });
+        let Some(list) = found else {
             return InForce::NoRow;
         };
         match list
@@ -218,8 +232,10 @@ mod tests {
 
     #[test]
     fn row_in_force_follows_the_effective_date() {
-        let r = reg("Pb,paint,6010D,ug/L,8,25,2025-03-01,S1\nPb,paint,6010D,ug/L,12,36,2026-11-16,S2\n")
-            .unwrap();
+        let r = reg(
+            "Pb,paint,6010D,ug/L,8,25,2025-03-01,S1\nPb,paint,6010D,ug/L,12,36,2026-11-16,S2\n",
+        )
+        .unwrap();
         let study = |d: &str| match r.in_force("pb", "Paint", "6010d", date(d)) {
             InForce::Row(row) => row.study_id.clone(),
             other => panic!("{other:?}"),
@@ -231,19 +247,37 @@ mod tests {
             r.in_force("Pb", "paint", "6010D", date("2025-02-28")),
             InForce::NotYet(date("2025-03-01"))
         );
-        assert_eq!(r.in_force("Cd", "paint", "6010D", date("2026-01-01")), InForce::NoRow);
+        assert_eq!(
+            r.in_force("Cd", "paint", "6010D", date("2026-01-01")),
+            InForce::NoRow
+        );
     }
 
     #[test]
     fn load_errors_name_file_line_and_field() {
-        let e = reg("Pb,paint,6010D,ug/L,8,25,2025-03-01,S1\nPb,paint,6010D,ug/L,9,25,2025-03-01,S2\n")
-            .unwrap_err();
-        assert!(e.to_string().starts_with("limits.csv:3: field `effective_from`"), "{e}");
+        let e =
+            reg("Pb,paint,6010D,ug/L,8,25,2025-03-01,S1\nPb,paint,6010D,ug/L,9,25,2025-03-01,S2\n")
+                .unwrap_err();
+        assert!(
+            e.to_string()
+                .starts_with("limits.csv:3: field `effective_from`"),
+            "{e}"
+        );
         let e = reg("Pb,paint,6010D,ug/L,8,5,2025-03-01,S1\n").unwrap_err();
-        assert!(e.to_string().starts_with("limits.csv:2: field `loq`"), "{e}");
+        assert!(
+            e.to_string().starts_with("limits.csv:2: field `loq`"),
+            "{e}"
+        );
         let e = reg("Pb,paint,6010D,ug/L,0,5,2025-03-01,S1\n").unwrap_err();
-        assert!(e.to_string().starts_with("limits.csv:2: field `mdl`"), "{e}");
+        assert!(
+            e.to_string().starts_with("limits.csv:2: field `mdl`"),
+            "{e}"
+        );
         let e = reg("Pb,paint,6010D,ug/m3,8,25,2025-03-01,S1\n").unwrap_err();
-        assert!(e.to_string().starts_with("limits.csv:2: field `unit`: unknown unit"), "{e}");
+        assert!(
+            e.to_string()
+                .starts_with("limits.csv:2: field `unit`: unknown unit"),
+            "{e}"
+        );
     }
 }

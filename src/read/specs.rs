@@ -7,6 +7,7 @@ use crate::units::Unit;
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
 use std::collections::HashMap;
+use std::sync::Arc;
 
 pub const COLUMNS: &[Col] = &[
     req("spec"),
@@ -22,12 +23,12 @@ pub const COLUMNS: &[Col] = &[
 pub struct SpecRow {
     pub file: String,
     pub line: u64,
-    pub spec: String,
+    pub spec: Arc<str>,
     pub analyte: String,
     pub matrix: String,
     pub limit: Decimal,
     pub unit: Unit,
-    pub citation: String,
+    pub citation: Arc<str>,
     pub effective_from: NaiveDate,
 }
 
@@ -45,15 +46,19 @@ pub struct Specs {
     pub file: String,
     pub rows: Vec<SpecRow>,
     /// Row indices per (spec, analyte), all matrices.
-    index: HashMap<(String, String), Vec<usize>>,
+    index: HashMap<String, Vec<usize>, crate::fasthash::Build>,
 }
 
 fn same(a: &str, b: &str) -> bool {
-    a.trim().to_lowercase() == b.trim().to_lowercase()
+    let (a, b) = (a.trim(), b.trim());
+    a.eq_ignore_ascii_case(b) || a.to_lowercase() == b.to_lowercase()
 }
 
-fn norm(a: &str) -> String {
-    a.trim().to_lowercase()
+fn key_into(buf: &mut String, spec: &str, analyte: &str) {
+    buf.clear();
+    crate::fasthash::push_lower(buf, spec.trim());
+    buf.push('\u{1f}');
+    crate::fasthash::push_lower(buf, analyte.trim());
 }
 
 impl Specs {
@@ -71,12 +76,12 @@ impl Specs {
             let row = SpecRow {
                 file: file.to_string(),
                 line: r.line,
-                spec: r.required(0)?.to_string(),
+                spec: r.required(0)?.into(),
                 analyte: r.required(1)?.to_string(),
                 matrix: r.text(2),
                 limit,
                 unit: r.unit(4)?,
-                citation: r.text(5),
+                citation: r.get(5).into(),
                 effective_from: r.date(6)?,
             };
             if let Some(prev) = rows.iter().find(|p| {
@@ -97,9 +102,11 @@ impl Specs {
             rows.push(row);
             Ok(())
         })?;
-        let mut index: HashMap<_, Vec<usize>> = HashMap::new();
+        let mut index: HashMap<String, Vec<usize>, crate::fasthash::Build> = HashMap::default();
         for (i, r) in rows.iter().enumerate() {
-            index.entry((norm(&r.spec), norm(&r.analyte))).or_default().push(i);
+            let mut k = String::new();
+            key_into(&mut k, &r.spec, &r.analyte);
+            index.entry(k).or_default().push(i);
         }
         Ok(Specs {
             file: file.to_string(),
@@ -110,39 +117,43 @@ impl Specs {
 
     /// The limit in force on `date`; a row for the exact matrix wins over a
     /// row that applies to every matrix.
-    pub fn in_force(&self, spec: &str, analyte: &str, matrix: &str, date: NaiveDate) -> SpecLookup<'_> {
-        let Some(list) = self.index.get(&(norm(spec), norm(analyte))) else {
+    pub fn in_force(
+        &self,
+        spec: &str,
+        analyte: &str,
+        matrix: &str,
+        date: NaiveDate,
+    ) -> SpecLookup<'_> {
+        let found = crate::fasthash::with_buffer(|buf| {
+            key_into(buf, spec, analyte);
+            self.index.get(buf.as_str())
+        });
+        let Some(list) = found else {
             return if self.rows.iter().any(|r| same(&r.spec, spec)) {
                 SpecLookup::NoLimitFor
             } else {
                 SpecLookup::UnknownSpec
             };
         };
-        let exact: Vec<&SpecRow> = list
-            .iter()
-            .map(|&i| &self.rows[i])
-            .filter(|r| same(&r.matrix, matrix))
-            .collect();
-        let candidates = if exact.is_empty() {
-            list.iter()
-                .map(|&i| &self.rows[i])
-                .filter(|r| r.matrix.is_empty())
-                .collect()
-        } else {
-            exact
-        };
-        if candidates.is_empty() {
+        let rows = list.iter().map(|&i| &self.rows[i]);
+        let exact = rows.clone().any(|r| same(&r.matrix, matrix));
+        let candidates = rows.filter(|r| {
+            if exact {
+                same(&r.matrix, matrix)
+            } else {
+                r.matrix.is_empty()
+            }
+        });
+        if candidates.clone().next().is_none() {
             return SpecLookup::NoLimitFor;
         }
         match candidates
-            .iter()
+            .clone()
             .filter(|r| r.effective_from <= date)
             .max_by_key(|r| r.effective_from)
         {
             Some(r) => SpecLookup::Row(r),
-            None => SpecLookup::NotYet(
-                candidates.iter().map(|r| r.effective_from).min().unwrap_or(date),
-            ),
+            None => SpecLookup::NotYet(candidates.map(|r| r.effective_from).min().unwrap_or(date)),
         }
     }
 }
@@ -165,7 +176,7 @@ mod tests {
         )
         .unwrap();
         match s.in_force("P", "pb", "PAINT", date("2026-06-01")) {
-            SpecLookup::Row(r) => assert_eq!(r.citation, "stricter"),
+            SpecLookup::Row(r) => assert_eq!(&*r.citation, "stricter"),
             o => panic!("{o:?}"),
         }
         assert!(matches!(
@@ -173,10 +184,16 @@ mod tests {
             SpecLookup::NotYet(_)
         ));
         match s.in_force("P", "Pb", "alloy", date("2025-06-01")) {
-            SpecLookup::Row(r) => assert_eq!(r.citation, "general"),
+            SpecLookup::Row(r) => assert_eq!(&*r.citation, "general"),
             o => panic!("{o:?}"),
         }
-        assert_eq!(s.in_force("Q", "Pb", "paint", date("2026-06-01")), SpecLookup::UnknownSpec);
-        assert_eq!(s.in_force("P", "Cd", "paint", date("2026-06-01")), SpecLookup::NoLimitFor);
+        assert_eq!(
+            s.in_force("Q", "Pb", "paint", date("2026-06-01")),
+            SpecLookup::UnknownSpec
+        );
+        assert_eq!(
+            s.in_force("P", "Cd", "paint", date("2026-06-01")),
+            SpecLookup::NoLimitFor
+        );
     }
 }

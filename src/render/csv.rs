@@ -40,32 +40,43 @@ pub fn neutralise(text: &str) -> std::borrow::Cow<'_, str> {
     }
 }
 
-fn record(report: &Report, r: &ReportRow) -> [String; 22] {
-    let t = |s: &str| neutralise(s).into_owned();
-    [
-        t(&report.header.report),
-        report.header.revision.to_string(),
-        t(&r.lab_id),
-        t(&r.client_id),
-        t(&r.description),
-        t(&r.analyte),
-        t(&r.matrix),
-        t(&r.method),
-        r.analyzed_on.to_string(),
-        t(&r.reported),
-        r.value.map(|v| v.to_string()).unwrap_or_default(),
-        plain(r.value_unrounded),
-        t(r.unit.symbol()),
-        r.state.name().to_string(),
-        r.mdl.to_string(),
-        r.loq.to_string(),
-        plain(r.dilution),
-        t(r.spec.as_deref().unwrap_or("")),
-        r.spec_limit.map(plain).unwrap_or_default(),
-        r.verdict.map(|v| v.name()).unwrap_or("").to_string(),
-        t(&r.qualifiers.join(";")),
-        t(&r.limits_row),
-    ]
+fn write_row(w: &mut ::csv::Writer<Vec<u8>>, num: &mut String, report: &Report, r: &ReportRow) {
+    use std::fmt::Write as _;
+    // Writing to a Vec cannot fail.
+    let text = |w: &mut ::csv::Writer<Vec<u8>>, s: &str| {
+        let _ = w.write_field(neutralise(s).as_bytes());
+    };
+    let mut number = |w: &mut ::csv::Writer<Vec<u8>>, v: &dyn std::fmt::Display| {
+        num.clear();
+        let _ = write!(num, "{v}");
+        let _ = w.write_field(num.as_bytes());
+    };
+    text(w, &report.header.report);
+    number(w, &report.header.revision);
+    text(w, &r.lab_id);
+    text(w, &r.client_id);
+    text(w, &r.description);
+    text(w, &r.analyte);
+    text(w, &r.matrix);
+    text(w, &r.method);
+    number(w, &r.analyzed_on);
+    text(w, &r.reported);
+    match r.value {
+        Some(v) => number(w, &v),
+        None => number(w, &""),
+    }
+    number(w, &plain(r.value_unrounded));
+    text(w, r.unit.symbol());
+    text(w, r.state.name());
+    number(w, &r.mdl);
+    number(w, &r.loq);
+    number(w, &plain(r.dilution));
+    text(w, r.spec.as_deref().unwrap_or(""));
+    number(w, &r.spec_limit.map(plain).unwrap_or_default());
+    text(w, r.verdict.map(|v| v.name()).unwrap_or(""));
+    text(w, &r.qualifiers.join(";"));
+    text(w, &r.limits_row);
+    let _ = w.write_record(None::<&[u8]>);
 }
 
 impl Render for Csv {
@@ -76,11 +87,11 @@ impl Render for Csv {
     fn render(&self, report: &Report) -> Vec<u8> {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
-            .from_writer(Vec::with_capacity(160 * (report.rows.len() + 1)));
-        // Writing to a Vec cannot fail.
+            .from_writer(Vec::with_capacity(180 * (report.rows.len() + 1)));
         let _ = w.write_record(HEADER);
+        let mut num = String::new();
         for r in &report.rows {
-            let _ = w.write_record(record(report, r));
+            write_row(&mut w, &mut num, report, r);
         }
         w.into_inner().unwrap_or_default()
     }

@@ -5,7 +5,9 @@ use crate::classify::Verdict;
 use crate::numeric::plain;
 use crate::report::Report;
 
-const HEAD: [&str; 7] = ["lab id", "analyte", "result", "unit", "state", "limit", "verdict"];
+const HEAD: [&str; 7] = [
+    "lab id", "analyte", "result", "unit", "state", "limit", "verdict",
+];
 
 fn paint(text: &str, verdict: Option<Verdict>, colour: bool) -> String {
     if !colour {
@@ -40,7 +42,7 @@ pub fn render(report: &Report, colour: bool) -> String {
         .map(|r| {
             [
                 r.lab_id.clone(),
-                r.analyte.clone(),
+                r.analyte.to_string(),
                 r.reported.clone(),
                 r.unit.symbol().to_string(),
                 r.state.name().to_string(),
@@ -79,7 +81,10 @@ pub fn render(report: &Report, colour: bool) -> String {
         s.trim_end().to_string() + "\n"
     };
     out.push_str(&line(HEAD, None));
-    out.push_str(&line(widths.map(|w| "─".repeat(w)).each_ref().map(|s| s.as_str()), None));
+    out.push_str(&line(
+        widths.map(|w| "─".repeat(w)).each_ref().map(|s| s.as_str()),
+        None,
+    ));
     for (row, r) in cells.iter().zip(&report.rows) {
         out.push_str(&line(row.each_ref().map(|s| s.as_str()), r.verdict));
     }
