@@ -10,6 +10,7 @@ pub mod fasthash;
 pub mod numeric;
 pub mod output;
 pub mod problem;
+pub mod qc;
 pub mod read;
 pub mod render;
 pub mod report;

@@ -12,6 +12,9 @@ pub enum ProblemKind {
     MissingSpec,
     /// The reading is above the calibrated range.
     OverRange,
+    /// A QC check failed or is missing in a way that holds the results;
+    /// the only kind `--accept-qc` may override.
+    Qc,
 }
 
 #[derive(Debug, Clone, PartialEq)]

@@ -4,6 +4,7 @@
 use crate::classify::{self, Comparison, State, Verdict, VerdictError};
 use crate::numeric::round_sig;
 use crate::problem::{Problem, ProblemKind};
+use crate::qc::{QC_EXCEPTION, QcCheck};
 use crate::read::batch::each_result;
 use crate::read::{
     Batch, Compare, DecisionRule, Kind, Loc, NotDetectedStyle, PageSize, ResultRow, Workspace,
@@ -71,6 +72,8 @@ pub struct Header {
 /// One client result as the certificate states it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ReportRow {
+    /// The results file line, for run order and messages.
+    pub line: u64,
     pub lab_id: String,
     pub client_id: String,
     pub description: String,
@@ -104,14 +107,41 @@ pub struct ReportRow {
 pub struct Report {
     pub header: Header,
     pub rows: Vec<ReportRow>,
-    /// QC rows, kept for the QC evaluation; never client results.
+    /// QC rows as read; never client results.
     pub qc: Vec<ResultRow>,
+    pub qc_checks: Vec<QcCheck>,
+    /// The reason given when held QC was accepted for issue.
+    pub qc_exception: Option<String>,
     pub problems: Vec<Problem>,
 }
 
 impl Report {
     pub fn is_blocked(&self) -> bool {
         !self.problems.is_empty()
+    }
+
+    /// Issues despite QC that holds the batch: the QC problems are lifted,
+    /// every result they held is qualified `qc-exception`, and the reason is
+    /// kept for the certificate. Other problems still block.
+    pub fn accept_qc(&mut self, reason: &str) {
+        let held: Vec<usize> = self
+            .qc_checks
+            .iter()
+            .filter(|c| c.blocking)
+            .flat_map(|c| c.affected.iter().copied())
+            .collect();
+        let any = self.problems.iter().any(|p| p.kind == ProblemKind::Qc);
+        if held.is_empty() && !any {
+            return;
+        }
+        for i in held {
+            let q = &mut self.rows[i].qualifiers;
+            if !q.iter().any(|x| x == QC_EXCEPTION) {
+                q.push(QC_EXCEPTION.to_string());
+            }
+        }
+        self.problems.retain(|p| p.kind != ProblemKind::Qc);
+        self.qc_exception = Some(reason.trim().to_string());
     }
 }
 
@@ -182,10 +212,14 @@ pub fn build(
         Ok::<(), EvalError>(())
     })?;
     rows.shrink_to_fit();
+    let evaluated = crate::qc::evaluate(ws, &batch.results_file, &qc, &mut rows)?;
+    problems.extend(evaluated.problems);
     Ok(Report {
         header,
         rows,
         qc,
+        qc_checks: evaluated.checks,
+        qc_exception: None,
         problems,
     })
 }
@@ -243,6 +277,7 @@ fn classify_row(
         State::DetectedBelowLoq | State::Quantified => (rounded.to_string(), Some(rounded)),
     };
     Ok(ReportRow {
+        line: row.line,
         lab_id: row.lab_id,
         client_id: row.client_id,
         description: row.description,

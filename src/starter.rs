@@ -77,6 +77,10 @@ results = "results.csv"
 "#;
 
 const STARTER_RESULTS: &str = "lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,uncertainty_pct,spike_added,parent_id
+MB-1,,Method blank,method-blank,Pb,paint,6010D,0.4,µg/L,1,0.1000,50,2026-01-14,,,,
+MB-1,,Method blank,method-blank,Cd,paint,6010D,0.1,µg/L,1,0.1000,50,2026-01-14,,,,
+LCS-1,,Laboratory control sample,lcs,Pb,paint,6010D,48.6,µg/L,1,0.1000,50,2026-01-14,,,25,
+LCS-1,,Laboratory control sample,lcs,Cd,paint,6010D,9.7,µg/L,1,0.1000,50,2026-01-14,,,5,
 S001,CLIENT-1,Example paint chip,sample,Pb,paint,6010D,42.0,µg/L,1,0.1000,50,2026-01-14,EXAMPLE-PB,,,
 S001,CLIENT-1,Example paint chip,sample,Cd,paint,6010D,0.5,µg/L,1,0.1000,50,2026-01-14,,,,
 ";

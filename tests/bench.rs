@@ -10,7 +10,11 @@ use util::TestDir;
 fn big_batch(t: &TestDir, rows: usize) {
     t.demo_workspace("ws");
     let mut csv = String::with_capacity(rows * 120);
-    csv.push_str("lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,uncertainty_pct\n");
+    csv.push_str("lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,uncertainty_pct,spike_added\n");
+    for analyte in ["Pb", "Cd"] {
+        let _ = writeln!(csv, "MB-1,,Method blank,method-blank,{analyte},paint,6010D,0.2,µg/L,1,0.100,50,2026-11-13,,,");
+        let _ = writeln!(csv, "LCS-1,,LCS,lcs,{analyte},paint,6010D,49,µg/L,1,0.100,50,2026-11-13,,,25");
+    }
     for i in 0..rows {
         let analyte = if i % 2 == 0 { "Pb" } else { "Cd" };
         let spec = if i % 2 == 0 {
@@ -21,7 +25,7 @@ fn big_batch(t: &TestDir, rows: usize) {
         let reading = (i * 7919) % 1900;
         let _ = writeln!(
             csv,
-            "S{:07},C{},Paint chip {},sample,{analyte},paint,6010D,{}.{},µg/L,{},0.{:04},50,2026-11-{:02},{spec},",
+            "S{:07},C{},Paint chip {},sample,{analyte},paint,6010D,{}.{},µg/L,{},0.{:04},50,2026-11-{:02},{spec},,",
             i / 2,
             i / 2,
             i / 2,

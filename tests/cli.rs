@@ -17,6 +17,8 @@ const HEAD: &str = "lab_id,client_id,description,kind,analyte,matrix,method,read
 fn fixture(name: &str, results: &str) -> TestDir {
     let t = TestDir::new(name);
     t.write("ws/lab.toml", LAB);
+    // These fixtures test results, not QC: no QC kind is required.
+    t.write("ws/qc.toml", "required = []\n");
     t.write("ws/limits.csv", LIMITS);
     t.write("ws/specs.csv", SPECS);
     t.write("ws/b1/batch.toml", BATCH);
@@ -33,7 +35,18 @@ fn demo_issues_the_two_clean_batches_and_holds_the_blocked_one() {
     let t = TestDir::new("demo");
     let r = t.limen(&["demo", "--out", "out"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
-    assert!(r.stdout.contains("BLOCKED: 2 problem(s)"), "{}", r.stdout);
+    assert!(
+        r.stdout
+            .contains("R01 Pb: reading 6200 µg/L is above the calibrated range"),
+        "{}",
+        r.stdout
+    );
+    assert!(r.stdout.contains("R02 Sb: no limits"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("no method-blank for Pb / 6010D"),
+        "{}",
+        r.stdout
+    );
     assert!(t.exists("out/reports/COA-2611-041.csv"));
     assert!(t.exists("out/reports/COA-2611-052.csv"));
     assert!(!t.exists("out/reports/COA-2611-058.csv"));

@@ -16,6 +16,10 @@ pub struct Args {
     /// The workspace folder; default: searched upward from each batch for lab.toml.
     #[arg(long, value_name = "DIR")]
     workspace: Option<PathBuf>,
+    /// Issue despite QC that holds the batch; the reason goes on the report
+    /// and every held result is qualified qc-exception.
+    #[arg(long, value_name = "REASON")]
+    accept_qc: Option<String>,
 }
 
 pub fn run(a: Args) -> Result<i32, Error> {
@@ -23,7 +27,17 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut reports = Vec::new();
     for dir in &a.batches {
         let (ws, batch) = load(dir, a.workspace.as_deref())?;
-        reports.push(limen::report::build(&ws, &batch, 0, &run)?);
+        let mut report = limen::report::build(&ws, &batch, 0, &run)?;
+        if let Some(reason) = &a.accept_qc {
+            if reason.trim().is_empty() {
+                return Err(Error::Usage {
+                    message: "--accept-qc needs a reason".into(),
+                    hint: "say why the QC exception is acceptable, e.g. --accept-qc \"LCS high bias; all results ND\"".into(),
+                });
+            }
+            report.accept_qc(reason);
+        }
+        reports.push(report);
     }
     let blocked: Vec<_> = reports.iter().filter(|r| r.is_blocked()).collect();
     if !blocked.is_empty() {

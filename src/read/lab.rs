@@ -57,6 +57,7 @@ struct LabFile {
     page_size: Option<PageSize>,
     #[serde(default)]
     methods: BTreeMap<String, String>,
+    qc: Option<super::qc_config::QcFile>,
 }
 
 #[derive(Debug, Clone)]
@@ -73,6 +74,9 @@ pub struct Lab {
     pub page_size: PageSize,
     /// Method id (as used in the register) -> description for certificates.
     pub methods: BTreeMap<String, String>,
+    /// QC windows from lab.toml's [qc]; the workspace may take them from qc.toml instead.
+    pub qc: super::qc_config::QcConfig,
+    pub qc_in_lab_file: bool,
 }
 
 impl Lab {
@@ -91,7 +95,25 @@ impl Lab {
                 "use a whole number from 1 to 10 (3 is usual)",
             ));
         }
+        let qc_in_lab_file = f.qc.is_some();
+        let qc = match &f.qc {
+            None => Default::default(),
+            Some(q) => q.resolve().map_err(|problem| {
+                let line = text
+                    .lines()
+                    .position(|l| l.trim_start().starts_with("[qc"))
+                    .map(|i| i as u64 + 1)
+                    .unwrap_or(1);
+                ReadError::Toml {
+                    file: file.to_string(),
+                    line,
+                    message: problem,
+                }
+            })?,
+        };
         Ok(Lab {
+            qc,
+            qc_in_lab_file,
             name: f.name,
             address: f.address,
             accreditation: f.accreditation.filter(|a| !a.trim().is_empty()),

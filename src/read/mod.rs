@@ -5,6 +5,7 @@ pub mod batch;
 pub mod csvtable;
 pub mod error;
 pub mod lab;
+pub mod qc_config;
 pub mod register;
 pub mod specs;
 mod toml_util;
@@ -38,7 +39,31 @@ impl Workspace {
                 "save the file as UTF-8",
             )
         })?;
-        let lab = Lab::parse(&lab_file, &lab_text)?;
+        let mut lab = Lab::parse(&lab_file, &lab_text)?;
+        let qc_path = root.join("qc.toml");
+        if qc_path.is_file() {
+            let qc_file = qc_path.display().to_string();
+            if lab.qc_in_lab_file {
+                return Err(ReadError::field(
+                    Loc::file(&qc_file),
+                    "QC windows are set both here and in lab.toml's [qc]",
+                    "keep the QC windows in one place: qc.toml or lab.toml's [qc], not both",
+                ));
+            }
+            let text = String::from_utf8(csvtable::read_file(&qc_path)?).map_err(|_| {
+                ReadError::field(
+                    Loc::file(&qc_file),
+                    "not valid UTF-8 text",
+                    "save the file as UTF-8",
+                )
+            })?;
+            let parsed: qc_config::QcFile = toml_util::parse(&qc_file, &text)?;
+            lab.qc = parsed.resolve().map_err(|message| ReadError::Toml {
+                file: qc_file.clone(),
+                line: 1,
+                message,
+            })?;
+        }
         let limits = root.join("limits.csv");
         let register = Register::parse(
             &limits.display().to_string(),

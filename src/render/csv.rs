@@ -74,9 +74,23 @@ fn write_row(w: &mut ::csv::Writer<Vec<u8>>, num: &mut String, report: &Report, 
     text(w, r.spec.as_deref().unwrap_or(""));
     number(w, &r.spec_limit.map(plain).unwrap_or_default());
     text(w, r.verdict.map(|v| v.name()).unwrap_or(""));
-    text(w, &r.qualifiers.join(";"));
+    text(w, &qualifiers(report, r));
     text(w, &r.limits_row);
     let _ = w.write_record(None::<&[u8]>);
+}
+
+/// Qualifiers joined by ';'; an accepted QC exception carries its reason.
+fn qualifiers(report: &Report, r: &ReportRow) -> String {
+    r.qualifiers
+        .iter()
+        .map(|q| match (&report.qc_exception, q.as_str()) {
+            (Some(reason), crate::qc::QC_EXCEPTION) => {
+                format!("{q} ({})", reason.replace(';', ","))
+            }
+            _ => q.clone(),
+        })
+        .collect::<Vec<_>>()
+        .join(";")
 }
 
 impl Render for Csv {

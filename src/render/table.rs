@@ -26,6 +26,58 @@ fn width(s: &str) -> usize {
     s.chars().count()
 }
 
+fn qc_section(report: &Report) -> String {
+    if report.qc_checks.is_empty() {
+        return "QC: no QC rows in this batch.\n\n".into();
+    }
+    let mut out = String::from("QC\n");
+    let rows: Vec<[String; 6]> = report
+        .qc_checks
+        .iter()
+        .map(|c| {
+            [
+                c.check.to_string(),
+                format!("{} {}", c.analyte, c.method),
+                c.rows.clone(),
+                c.value.clone(),
+                c.window.clone(),
+                if c.note.is_empty() {
+                    c.outcome.name().to_string()
+                } else {
+                    format!("{} ({})", c.outcome.name(), c.note)
+                },
+            ]
+        })
+        .collect();
+    let mut widths = [0usize; 6];
+    for r in &rows {
+        for (w, c) in widths.iter_mut().zip(r) {
+            *w = (*w).max(width(c));
+        }
+    }
+    for r in &rows {
+        let mut line = String::from("  ");
+        for (i, c) in r.iter().enumerate() {
+            let pad = widths[i] - width(c);
+            if i == 3 {
+                line.push_str(&" ".repeat(pad));
+                line.push_str(c);
+            } else {
+                line.push_str(c);
+                line.push_str(&" ".repeat(pad));
+            }
+            line.push_str("  ");
+        }
+        out.push_str(line.trim_end());
+        out.push('\n');
+    }
+    if let Some(reason) = &report.qc_exception {
+        out.push_str(&format!("  QC exception accepted: {reason}\n"));
+    }
+    out.push('\n');
+    out
+}
+
 pub fn render(report: &Report, colour: bool) -> String {
     let h = &report.header;
     let mut out = format!(
@@ -50,7 +102,12 @@ pub fn render(report: &Report, colour: bool) -> String {
                     (Some(l), Some(s)) => format!("{} ({s})", plain(*l)),
                     _ => String::new(),
                 },
-                r.verdict.map(|v| v.name().to_string()).unwrap_or_default(),
+                match (r.verdict, r.qualifiers.is_empty()) {
+                    (Some(v), true) => v.name().to_string(),
+                    (Some(v), false) => format!("{} [{}]", v.name(), r.qualifiers.join("; ")),
+                    (None, true) => String::new(),
+                    (None, false) => format!("[{}]", r.qualifiers.join("; ")),
+                },
             ]
         })
         .collect();
@@ -92,6 +149,7 @@ pub fn render(report: &Report, colour: bool) -> String {
         out.push_str("(no client results)\n");
     }
     out.push('\n');
+    out.push_str(&qc_section(report));
     if report.problems.is_empty() {
         out.push_str(&format!(
             "{} client result(s); no blocking problems: the batch can be issued.\n",

@@ -1,0 +1,824 @@
+//! Phase 3b: batch QC. Evaluates method blanks, LCSs, matrix spikes,
+//! duplicates and calibration checks against the lab's windows, qualifies
+//! client results, and says what holds the batch.
+
+use crate::classify::State;
+use crate::numeric::{plain, round_sig};
+use crate::problem::{Problem, ProblemKind};
+use crate::read::qc_config::Criteria;
+use crate::read::{InForce, Kind, Loc, ReadError, ResultRow, Workspace};
+use crate::report::{EvalError, ReportRow};
+use crate::resolve::{self, Resolution};
+use crate::units::{Dimension, Unit, convert};
+use rust_decimal::Decimal;
+use std::collections::HashMap;
+use std::sync::Arc;
+
+pub const BLANK_AFFECTED: &str = "blank-affected";
+pub const MATRIX_EFFECT: &str = "matrix-effect";
+pub const IMPRECISE: &str = "imprecise";
+pub const QC_EXCEPTION: &str = "qc-exception";
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    Pass,
+    Fail,
+    NotEvaluated,
+    Missing,
+}
+
+impl Outcome {
+    pub fn name(self) -> &'static str {
+        match self {
+            Outcome::Pass => "pass",
+            Outcome::Fail => "fail",
+            Outcome::NotEvaluated => "not evaluated",
+            Outcome::Missing => "missing",
+        }
+    }
+}
+
+/// One QC check as a certificate's QC summary states it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct QcCheck {
+    pub check: &'static str,
+    pub analyte: Arc<str>,
+    pub method: Arc<str>,
+    /// The rows the check uses, e.g. "MS-1 on P01".
+    pub rows: String,
+    /// The number judged, with its unit or %.
+    pub value: String,
+    pub window: String,
+    pub outcome: Outcome,
+    /// What followed: results qualified or held.
+    pub note: String,
+    /// True when this check holds the batch.
+    pub blocking: bool,
+    /// Indices into the report rows that this check qualifies or holds.
+    pub affected: Vec<usize>,
+}
+
+fn pct(x: Decimal) -> String {
+    format!("{} %", round_sig(x, 3))
+}
+
+fn window(w: (Decimal, Decimal)) -> String {
+    format!("{}–{} %", plain(w.0), plain(w.1))
+}
+
+fn within(x: Decimal, w: (Decimal, Decimal)) -> bool {
+    // Both edges pass (common practice, no source).
+    x >= w.0 && x <= w.1
+}
+
+fn lower(s: &str) -> String {
+    s.trim().to_lowercase()
+}
+
+/// A QC row's value and limits in its own unit.
+struct Measured {
+    value: Decimal,
+    mdl: Decimal,
+    loq: Decimal,
+    unit: Unit,
+}
+
+fn required_spike(row: &ResultRow) -> Result<Decimal, EvalError> {
+    match row.spike_added {
+        Some(s) if s > Decimal::ZERO => Ok(s),
+        Some(s) => Err(EvalError::Read(ReadError::field(
+            row.loc("spike_added"),
+            format!("{s} must be greater than zero"),
+            "give the amount added (or the true value of a CCV) in the result's unit",
+        ))),
+        None => Err(EvalError::Read(ReadError::field(
+            row.loc("spike_added"),
+            format!("empty, but a {} needs the amount added", row.kind.name()),
+            "give the amount added (or the true value of a CCV) in the result's unit after preparation",
+        ))),
+    }
+}
+
+fn overflow(row: &ResultRow) -> EvalError {
+    EvalError::Overflow {
+        at: row.loc("reading"),
+    }
+}
+
+/// Instrument-level value and LOQ for calibration checks (CCV, CCB), which
+/// are read directly and never prepared.
+fn reading_level(ws: &Workspace, row: &ResultRow) -> Result<Option<Measured>, EvalError> {
+    let limits = match ws
+        .register
+        .in_force(&row.analyte, &row.matrix, &row.method, row.analyzed_on)
+    {
+        InForce::Row(r) => r,
+        _ => return Ok(None),
+    };
+    let value = row
+        .reading
+        .checked_mul(row.dilution)
+        .ok_or_else(|| overflow(row))?;
+    let to_reading = |x: Decimal| -> Option<Decimal> {
+        match limits.unit.dimension() {
+            Dimension::MassConcentration => convert(x, limits.unit, row.reading_unit),
+            Dimension::MassFraction => {
+                // mg/kg × g / mL × 1000 = µg/L at the nominal preparation.
+                let (m, v) = (limits.nominal_mass_g?, limits.nominal_volume_ml?);
+                let in_mg_kg = convert(x, limits.unit, Unit::MgPerKg)?;
+                let ug_l = in_mg_kg
+                    .checked_mul(m)?
+                    .checked_mul(Decimal::ONE_THOUSAND)?
+                    .checked_div(v)?;
+                convert(ug_l, Unit::UgPerL, row.reading_unit)
+            }
+        }
+    };
+    let (Some(mdl), Some(loq)) = (to_reading(limits.mdl), to_reading(limits.loq)) else {
+        return Err(EvalError::Read(ReadError::field(
+            Loc::new(&limits.file, limits.line, "unit"),
+            format!(
+                "the register row's {} limits cannot be put at reading level for {} {}",
+                limits.unit,
+                row.kind.name(),
+                row.lab_id
+            ),
+            "give the register row nominal_mass_g and nominal_volume_ml, or limits in a reading unit",
+        )));
+    };
+    Ok(Some(Measured {
+        value,
+        mdl,
+        loq,
+        unit: row.reading_unit,
+    }))
+}
+
+fn prepared(ws: &Workspace, row: &ResultRow) -> Result<Option<Measured>, EvalError> {
+    match resolve::resolve(row, ws)? {
+        Resolution::Resolved(r) => Ok(Some(Measured {
+            value: r.value,
+            mdl: r.mdl,
+            loq: r.loq,
+            unit: r.unit,
+        })),
+        Resolution::Blocked(_) => Ok(None),
+    }
+}
+
+/// RPD when both results are at least `factor` × LOQ, else the absolute
+/// difference against the LOQ. Returns (check name, value text, window text, pass).
+pub fn precision(
+    a: Decimal,
+    b: Decimal,
+    loq: Decimal,
+    unit: Unit,
+    c: &Criteria,
+) -> Option<(&'static str, String, String, bool)> {
+    let floor = loq.checked_mul(c.rpd_min_loq_factor)?;
+    let diff = (a - b).abs();
+    if a >= floor && b >= floor {
+        let mean = (a + b) / Decimal::TWO;
+        let rpd = diff.checked_mul(Decimal::ONE_HUNDRED)?.checked_div(mean)?;
+        Some((
+            "RPD",
+            pct(rpd),
+            format!("≤ {} %", plain(c.rpd_max_pct)),
+            rpd <= c.rpd_max_pct,
+        ))
+    } else {
+        Some((
+            "difference",
+            format!("{} {unit}", round_sig(diff, 3)),
+            format!("≤ LOQ {} {unit}", round_sig(loq, 3)),
+            diff <= loq,
+        ))
+    }
+}
+
+fn unit_clash(row: &ResultRow, qc_unit: Unit, sample_unit: Unit) -> EvalError {
+    EvalError::Read(ReadError::field(
+        row.loc("mass_g"),
+        format!(
+            "{} {} is in {qc_unit} but the samples it checks are in {sample_unit}",
+            row.kind.name(),
+            row.lab_id
+        ),
+        "prepare the QC row like its samples: give mass_g and volume_ml (the nominal ones for a blank or LCS)",
+    ))
+}
+
+/// A matrix spike and its duplicate on one parent: (value, lab id) each.
+#[derive(Default)]
+struct SpikePair {
+    ms: Option<(Decimal, String)>,
+    msd: Option<(Decimal, String)>,
+    loq: Decimal,
+}
+
+pub struct QcResult {
+    pub checks: Vec<QcCheck>,
+    pub problems: Vec<Problem>,
+}
+
+pub fn evaluate(
+    ws: &Workspace,
+    results_file: &str,
+    qc_rows: &[ResultRow],
+    rows: &mut [ReportRow],
+) -> Result<QcResult, EvalError> {
+    let config = &ws.lab.qc;
+    let mut checks: Vec<QcCheck> = Vec::new();
+    let mut problems: Vec<Problem> = Vec::new();
+    let mut qualify: Vec<(usize, &'static str)> = Vec::new();
+    let by_id: HashMap<(&str, String), usize> = rows
+        .iter()
+        .enumerate()
+        .map(|(i, r)| ((r.lab_id.as_str(), lower(&r.analyte)), i))
+        .collect();
+    let group = |r: &ReportRow| (lower(&r.analyte), lower(&r.method));
+    let parent_of = |q: &ResultRow| -> Result<usize, EvalError> {
+        let Some(pid) = &q.parent_id else {
+            return Err(EvalError::Read(ReadError::field(
+                q.loc("parent_id"),
+                format!(
+                    "empty, but a {} needs the sample it was made from",
+                    q.kind.name()
+                ),
+                "give the lab id of the parent sample",
+            )));
+        };
+        by_id
+            .get(&(pid.as_str(), lower(&q.analyte)))
+            .copied()
+            .ok_or_else(|| {
+                EvalError::Read(ReadError::field(
+                    q.loc("parent_id"),
+                    format!("{pid} has no {} sample result in this batch", q.analyte),
+                    "the parent must be a sample row of the same analyte in this results file",
+                ))
+            })
+    };
+    let no_limits = |q: &ResultRow| Problem {
+        at: q.loc("analyte"),
+        lab_id: q.lab_id.clone(),
+        analyte: q.analyte.clone(),
+        kind: ProblemKind::Qc,
+        message: format!(
+            "{} cannot be evaluated: no limits in force for {} / {} / {}",
+            q.kind.name(),
+            q.analyte,
+            q.matrix,
+            q.method
+        ),
+        hint: "add the register row, or correct the QC row's matrix or method".into(),
+    };
+
+    // Method blanks: associated with samples of the same analyte, method and matrix.
+    for q in qc_rows.iter().filter(|q| q.kind == Kind::MethodBlank) {
+        let c = config.for_method(&q.method);
+        let Some(m) = prepared(ws, q)? else {
+            problems.push(no_limits(q));
+            continue;
+        };
+        let assoc: Vec<usize> = rows
+            .iter()
+            .enumerate()
+            .filter(|(_, r)| {
+                lower(&r.analyte) == lower(&q.analyte)
+                    && lower(&r.method) == lower(&q.method)
+                    && lower(&r.matrix) == lower(&q.matrix)
+            })
+            .map(|(i, _)| i)
+            .collect();
+        if let Some(&i) = assoc.iter().find(|&&i| rows[i].unit != m.unit) {
+            return Err(unit_clash(q, m.unit, rows[i].unit));
+        }
+        let hundred = Decimal::ONE_HUNDRED;
+        let lowest_limit = assoc.iter().filter_map(|&i| rows[i].spec_limit).min();
+        let lowest_result = assoc
+            .iter()
+            .filter(|&&i| matches!(rows[i].state, State::DetectedBelowLoq | State::Quantified))
+            .map(|&i| rows[i].value_unrounded)
+            .min();
+        let mut threshold = m.mdl;
+        let mut basis = "MDL";
+        if let Some(l) = lowest_limit {
+            let t = l * c.blank_limit_pct / hundred;
+            if t > threshold {
+                threshold = t;
+                basis = "of the limit";
+            }
+        }
+        if let Some(v) = lowest_result {
+            let t = v * c.blank_sample_pct / hundred;
+            if t > threshold {
+                threshold = t;
+                basis = "of the lowest result";
+            }
+        }
+        let pass = m.value < threshold;
+        let mut affected = Vec::new();
+        if !pass {
+            let ceiling = m
+                .value
+                .checked_mul(c.blank_affects_below_factor)
+                .ok_or_else(|| overflow(q))?;
+            for &i in &assoc {
+                let r = &rows[i];
+                if matches!(r.state, State::DetectedBelowLoq | State::Quantified)
+                    && r.value_unrounded < ceiling
+                {
+                    affected.push(i);
+                    qualify.push((i, BLANK_AFFECTED));
+                }
+            }
+        }
+        let window = match basis {
+            "MDL" => format!("< {} {} (MDL)", round_sig(threshold, 3), m.unit),
+            "of the limit" => format!(
+                "< {} {} ({} % of the limit)",
+                round_sig(threshold, 3),
+                m.unit,
+                plain(c.blank_limit_pct)
+            ),
+            _ => format!(
+                "< {} {} ({} % of the lowest result)",
+                round_sig(threshold, 3),
+                m.unit,
+                plain(c.blank_sample_pct)
+            ),
+        };
+        checks.push(QcCheck {
+            check: "method blank",
+            analyte: q.analyte.clone(),
+            method: q.method.clone(),
+            rows: q.lab_id.clone(),
+            value: format!("{} {}", round_sig(m.value, 3), m.unit),
+            window,
+            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+            note: if pass {
+                String::new()
+            } else if affected.is_empty() {
+                "no result below 10 × the blank".into()
+            } else {
+                format!(
+                    "{BLANK_AFFECTED}: {}",
+                    affected
+                        .iter()
+                        .map(|&i| rows[i].lab_id.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )
+            },
+            blocking: false,
+            affected,
+        });
+    }
+
+    // LCS: a failed recovery holds every result of that analyte and method.
+    for q in qc_rows.iter().filter(|q| q.kind == Kind::Lcs) {
+        let c = config.for_method(&q.method);
+        let spike = required_spike(q)?;
+        let Some(m) = prepared(ws, q)? else {
+            problems.push(no_limits(q));
+            continue;
+        };
+        let recovery = m
+            .value
+            .checked_mul(Decimal::ONE_HUNDRED)
+            .and_then(|x| x.checked_div(spike))
+            .ok_or_else(|| overflow(q))?;
+        let pass = within(recovery, c.lcs_recovery_pct);
+        let key = (lower(&q.analyte), lower(&q.method));
+        let affected: Vec<usize> = if pass {
+            Vec::new()
+        } else {
+            rows.iter()
+                .enumerate()
+                .filter(|(_, r)| group(r) == key)
+                .map(|(i, _)| i)
+                .collect()
+        };
+        if !pass {
+            problems.push(Problem {
+                at: q.loc("reading"),
+                lab_id: q.lab_id.clone(),
+                analyte: q.analyte.clone(),
+                kind: ProblemKind::Qc,
+                message: format!(
+                    "LCS recovery {} is outside {}; {} result(s) of {} / {} are held",
+                    pct(recovery),
+                    window(c.lcs_recovery_pct),
+                    affected.len(),
+                    q.analyte,
+                    q.method
+                ),
+                hint: "re-prepare and re-analyse the batch for this analyte, or issue with --accept-qc \"REASON\"".into(),
+            });
+        }
+        checks.push(QcCheck {
+            check: "LCS recovery",
+            analyte: q.analyte.clone(),
+            method: q.method.clone(),
+            rows: q.lab_id.clone(),
+            value: pct(recovery),
+            window: window(c.lcs_recovery_pct),
+            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+            note: if pass {
+                String::new()
+            } else {
+                "results held".into()
+            },
+            blocking: !pass,
+            affected,
+        });
+    }
+
+    // Matrix spikes and spike duplicates.
+    let mut spiked: HashMap<(String, String), SpikePair> = HashMap::new();
+    for q in qc_rows
+        .iter()
+        .filter(|q| matches!(q.kind, Kind::MatrixSpike | Kind::MatrixSpikeDup))
+    {
+        let c = config.for_method(&q.method);
+        let spike = required_spike(q)?;
+        let p = parent_of(q)?;
+        let Some(m) = prepared(ws, q)? else {
+            problems.push(no_limits(q));
+            continue;
+        };
+        if m.unit != rows[p].unit {
+            return Err(unit_clash(q, m.unit, rows[p].unit));
+        }
+        let parent = rows[p].value_unrounded;
+        let name = if q.kind == Kind::MatrixSpike {
+            "matrix spike recovery"
+        } else {
+            "spike duplicate recovery"
+        };
+        let rows_text = format!("{} on {}", q.lab_id, rows[p].lab_id);
+        let entry = spiked
+            .entry((rows[p].lab_id.clone(), lower(&q.analyte)))
+            .or_insert_with(|| SpikePair {
+                loq: m.loq,
+                ..Default::default()
+            });
+        if q.kind == Kind::MatrixSpike {
+            entry.ms = Some((m.value, q.lab_id.clone()));
+        } else {
+            entry.msd = Some((m.value, q.lab_id.clone()));
+        }
+        let limit = spike
+            .checked_mul(c.spike_parent_max_factor)
+            .ok_or_else(|| overflow(q))?;
+        if parent > limit {
+            checks.push(QcCheck {
+                check: name,
+                analyte: q.analyte.clone(),
+                method: q.method.clone(),
+                rows: rows_text,
+                value: String::new(),
+                window: window(c.spike_recovery_pct),
+                outcome: Outcome::NotEvaluated,
+                note: format!(
+                    "sample is more than {} × the amount added",
+                    plain(c.spike_parent_max_factor)
+                ),
+                blocking: false,
+                affected: Vec::new(),
+            });
+            continue;
+        }
+        let recovery = (m.value - parent)
+            .checked_mul(Decimal::ONE_HUNDRED)
+            .and_then(|x| x.checked_div(spike))
+            .ok_or_else(|| overflow(q))?;
+        let pass = within(recovery, c.spike_recovery_pct);
+        if !pass {
+            qualify.push((p, MATRIX_EFFECT));
+        }
+        checks.push(QcCheck {
+            check: name,
+            analyte: q.analyte.clone(),
+            method: q.method.clone(),
+            rows: rows_text,
+            value: pct(recovery),
+            window: window(c.spike_recovery_pct),
+            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+            note: if pass {
+                String::new()
+            } else {
+                format!("{MATRIX_EFFECT}: {}", rows[p].lab_id)
+            },
+            blocking: false,
+            affected: if pass { Vec::new() } else { vec![p] },
+        });
+    }
+    let mut pairs: Vec<_> = spiked.into_iter().collect();
+    pairs.sort_by(|a, b| a.0.cmp(&b.0));
+    for ((parent_id, analyte), pair) in pairs {
+        let (Some((a, ms_id)), Some((b, msd_id))) = (pair.ms, pair.msd) else {
+            continue;
+        };
+        let loq = pair.loq;
+        let p = by_id[&(parent_id.as_str(), analyte.clone())];
+        let c = config.for_method(&rows[p].method);
+        let Some((kind, value, win, pass)) = precision(a, b, loq, rows[p].unit, c) else {
+            return Err(EvalError::Overflow {
+                at: Loc::new(&rows[p].lab_id, rows[p].line, "reading"),
+            });
+        };
+        if !pass {
+            qualify.push((p, IMPRECISE));
+        }
+        checks.push(QcCheck {
+            check: if kind == "RPD" {
+                "spike duplicate RPD"
+            } else {
+                "spike duplicate difference"
+            },
+            analyte: rows[p].analyte.clone(),
+            method: rows[p].method.clone(),
+            rows: format!("{ms_id} / {msd_id}"),
+            value,
+            window: win,
+            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+            note: if pass {
+                String::new()
+            } else {
+                format!("{IMPRECISE}: {}", rows[p].lab_id)
+            },
+            blocking: false,
+            affected: if pass { Vec::new() } else { vec![p] },
+        });
+    }
+
+    // Laboratory duplicates.
+    for q in qc_rows.iter().filter(|q| q.kind == Kind::Duplicate) {
+        let c = config.for_method(&q.method);
+        let p = parent_of(q)?;
+        let Some(m) = prepared(ws, q)? else {
+            problems.push(no_limits(q));
+            continue;
+        };
+        if m.unit != rows[p].unit {
+            return Err(unit_clash(q, m.unit, rows[p].unit));
+        }
+        let parent = &rows[p];
+        let (kind, value, win, pass) = precision(
+            parent.value_unrounded,
+            m.value,
+            parent.loq_unrounded,
+            parent.unit,
+            c,
+        )
+        .ok_or_else(|| overflow(q))?;
+        if !pass {
+            qualify.push((p, IMPRECISE));
+        }
+        checks.push(QcCheck {
+            check: if kind == "RPD" {
+                "duplicate RPD"
+            } else {
+                "duplicate difference"
+            },
+            analyte: q.analyte.clone(),
+            method: q.method.clone(),
+            rows: format!("{} / {}", parent.lab_id, q.lab_id),
+            value,
+            window: win,
+            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+            note: if pass {
+                String::new()
+            } else {
+                format!("{IMPRECISE}: {}", parent.lab_id)
+            },
+            blocking: false,
+            affected: if pass { Vec::new() } else { vec![p] },
+        });
+    }
+
+    // Calibration checks, bracketing the samples of their analyte and method
+    // in run order (analysis date, then file order).
+    let mut cal: Vec<(&ResultRow, bool, QcCheck)> = Vec::new();
+    for q in qc_rows
+        .iter()
+        .filter(|q| matches!(q.kind, Kind::Ccv | Kind::Ccb))
+    {
+        let c = config.for_method(&q.method);
+        let Some(m) = reading_level(ws, q)? else {
+            problems.push(no_limits(q));
+            continue;
+        };
+        let (check, value, win, pass) = if q.kind == Kind::Ccv {
+            let truth = required_spike(q)?;
+            let recovery = m
+                .value
+                .checked_mul(Decimal::ONE_HUNDRED)
+                .and_then(|x| x.checked_div(truth))
+                .ok_or_else(|| overflow(q))?;
+            (
+                "CCV recovery",
+                pct(recovery),
+                window(c.ccv_recovery_pct),
+                within(recovery, c.ccv_recovery_pct),
+            )
+        } else {
+            (
+                "CCB",
+                format!("{} {}", round_sig(m.value, 3), m.unit),
+                format!("< LOQ {} {}", round_sig(m.loq, 3), m.unit),
+                m.value < m.loq,
+            )
+        };
+        cal.push((
+            q,
+            pass,
+            QcCheck {
+                check,
+                analyte: q.analyte.clone(),
+                method: q.method.clone(),
+                rows: q.lab_id.clone(),
+                value,
+                window: win,
+                outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+                note: String::new(),
+                blocking: false,
+                affected: Vec::new(),
+            },
+        ));
+    }
+    cal.sort_by_key(|(q, _, _)| (q.analyzed_on, q.line));
+    for f in 0..cal.len() {
+        if cal[f].1 {
+            continue;
+        }
+        let key = (lower(&cal[f].0.analyte), lower(&cal[f].0.method));
+        let same: Vec<usize> = (0..cal.len())
+            .filter(|&j| (lower(&cal[j].0.analyte), lower(&cal[j].0.method)) == key)
+            .collect();
+        let at = |j: usize| (cal[j].0.analyzed_on, cal[j].0.line);
+        let before = same
+            .iter()
+            .rev()
+            .copied()
+            .find(|&j| at(j) < at(f) && cal[j].1)
+            .map(at);
+        let after = same
+            .iter()
+            .copied()
+            .find(|&j| at(j) > at(f) && cal[j].1)
+            .map(at);
+        let held: Vec<usize> = rows
+            .iter()
+            .enumerate()
+            .filter(|(_, r)| group(r) == key)
+            .filter(|(_, r)| {
+                let t = (r.analyzed_on, r.line);
+                before.is_none_or(|b| t > b) && after.is_none_or(|a| t < a)
+            })
+            .map(|(i, _)| i)
+            .collect();
+        let q = cal[f].0;
+        let ids = held
+            .iter()
+            .map(|&i| rows[i].lab_id.as_str())
+            .collect::<Vec<_>>()
+            .join(", ");
+        problems.push(Problem {
+            at: q.loc("reading"),
+            lab_id: q.lab_id.clone(),
+            analyte: q.analyte.clone(),
+            kind: ProblemKind::Qc,
+            message: format!(
+                "{} {} is outside {}; results run since the last passing check are held: {}",
+                cal[f].2.check,
+                cal[f].2.value,
+                cal[f].2.window,
+                if ids.is_empty() { "none" } else { &ids }
+            ),
+            hint: "recalibrate and re-analyse the bracketed results, or issue with --accept-qc \"REASON\"".into(),
+        });
+        let check = &mut cal[f].2;
+        check.blocking = !held.is_empty();
+        check.note = if held.is_empty() {
+            "no results bracketed".into()
+        } else {
+            format!("held: {ids}")
+        };
+        check.affected = held;
+    }
+    checks.extend(cal.into_iter().map(|(_, _, c)| c));
+
+    // Required QC kinds per analyte and method present among the samples.
+    let mut groups: Vec<(String, String, usize)> = Vec::new();
+    for (i, r) in rows.iter().enumerate() {
+        let k = group(r);
+        if !groups.iter().any(|(a, m, _)| (a, m) == (&k.0, &k.1)) {
+            groups.push((k.0, k.1, i));
+        }
+    }
+    for (analyte, method, first) in groups {
+        for kind in &config.required {
+            let present = qc_rows.iter().any(|q| {
+                q.kind == *kind && lower(&q.analyte) == analyte && lower(&q.method) == method
+            });
+            if present {
+                continue;
+            }
+            let affected: Vec<usize> = rows
+                .iter()
+                .enumerate()
+                .filter(|(_, r)| group(r) == (analyte.clone(), method.clone()))
+                .map(|(i, _)| i)
+                .collect();
+            let r = &rows[first];
+            problems.push(Problem {
+                at: Loc::file(results_file),
+                lab_id: r.lab_id.clone(),
+                analyte: r.analyte.clone(),
+                kind: ProblemKind::Qc,
+                message: format!(
+                    "no {} for {} / {}, which the lab's QC rules require",
+                    kind.name(),
+                    r.analyte,
+                    r.method
+                ),
+                hint: "add the QC row to the results, or issue with --accept-qc \"REASON\"".into(),
+            });
+            checks.push(QcCheck {
+                check: kind.name(),
+                analyte: r.analyte.clone(),
+                method: r.method.clone(),
+                rows: String::new(),
+                value: String::new(),
+                window: "required".into(),
+                outcome: Outcome::Missing,
+                note: "results held".into(),
+                blocking: true,
+                affected,
+            });
+        }
+    }
+
+    for (i, q) in qualify {
+        let quals = &mut rows[i].qualifiers;
+        if !quals.iter().any(|x| x == q) {
+            quals.push(q.to_string());
+        }
+    }
+    Ok(QcResult { checks, problems })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::str::FromStr;
+
+    fn d(s: &str) -> Decimal {
+        Decimal::from_str(s).unwrap()
+    }
+
+    // RPD = |a − b| / ((a + b) / 2) × 100 (EPA SW-846 Chapter One, definition of RPD, from memory):
+    // a = 52.0, b = 47.0 -> 5 / 49.5 × 100 = 10.1 %.
+    #[test]
+    fn rpd_worked_example() {
+        let c = Criteria::default();
+        let (kind, value, _, pass) =
+            precision(d("52.0"), d("47.0"), d("2"), Unit::MgPerKg, &c).unwrap();
+        assert_eq!((kind, value.as_str(), pass), ("RPD", "10.1 %", true));
+        // 60 vs 45: 15 / 52.5 = 28.6 % > 20 %.
+        let (_, value, _, pass) = precision(d("60"), d("45"), d("2"), Unit::MgPerKg, &c).unwrap();
+        assert_eq!((value.as_str(), pass), ("28.6 %", false));
+    }
+
+    // Below 5 × LOQ the absolute difference is judged against the LOQ (common practice, from memory).
+    #[test]
+    fn the_five_loq_switch() {
+        let c = Criteria::default();
+        let loq = d("2");
+        // Both at 10 = 5 × LOQ exactly: RPD applies.
+        assert_eq!(
+            precision(d("10"), d("10"), loq, Unit::MgPerKg, &c)
+                .unwrap()
+                .0,
+            "RPD"
+        );
+        // One at 9.99: difference rule. 9.99 vs 6.5 -> 3.49 > 2 fails although RPD would be 42 %.
+        let (kind, _, _, pass) = precision(d("9.99"), d("6.5"), loq, Unit::MgPerKg, &c).unwrap();
+        assert_eq!((kind, pass), ("difference", false));
+        // 3.0 vs 4.5: difference 1.5 ≤ 2 passes though the RPD is 40 %.
+        let (kind, _, _, pass) = precision(d("3.0"), d("4.5"), loq, Unit::MgPerKg, &c).unwrap();
+        assert_eq!((kind, pass), ("difference", true));
+    }
+
+    #[test]
+    fn window_edges_pass() {
+        let w = (d("80"), d("120"));
+        assert!(within(d("80"), w));
+        assert!(within(d("120"), w));
+        assert!(!within(d("79.99"), w));
+        assert!(!within(d("120.01"), w));
+    }
+}
