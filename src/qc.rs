@@ -75,6 +75,16 @@ fn lower(s: &str) -> String {
     s.trim().to_lowercase()
 }
 
+/// Case-insensitive equality without allocating for ASCII names.
+fn same(a: &str, b: &str) -> bool {
+    a.eq_ignore_ascii_case(b)
+        || (!(a.is_ascii() && b.is_ascii()) && a.to_lowercase() == b.to_lowercase())
+}
+
+fn in_group(r: &ReportRow, analyte: &str, method: &str) -> bool {
+    same(&r.analyte, analyte) && same(&r.method, method)
+}
+
 /// A QC row's value and limits in its own unit.
 struct Measured {
     value: Decimal,
@@ -231,12 +241,21 @@ pub fn evaluate(
     let mut checks: Vec<QcCheck> = Vec::new();
     let mut problems: Vec<Problem> = Vec::new();
     let mut qualify: Vec<(usize, &'static str)> = Vec::new();
-    let by_id: HashMap<(&str, String), usize> = rows
-        .iter()
-        .enumerate()
-        .map(|(i, r)| ((r.lab_id.as_str(), lower(&r.analyte)), i))
-        .collect();
-    let group = |r: &ReportRow| (lower(&r.analyte), lower(&r.method));
+    // Only spikes and duplicates look samples up by id.
+    let needs_parents = qc_rows.iter().any(|q| {
+        matches!(
+            q.kind,
+            Kind::MatrixSpike | Kind::MatrixSpikeDup | Kind::Duplicate
+        )
+    });
+    let by_id: HashMap<(&str, String), usize> = if needs_parents {
+        rows.iter()
+            .enumerate()
+            .map(|(i, r)| ((r.lab_id.as_str(), lower(&r.analyte)), i))
+            .collect()
+    } else {
+        HashMap::new()
+    };
     let parent_of = |q: &ResultRow| -> Result<usize, EvalError> {
         let Some(pid) = &q.parent_id else {
             return Err(EvalError::Read(ReadError::field(
@@ -284,11 +303,7 @@ pub fn evaluate(
         let assoc: Vec<usize> = rows
             .iter()
             .enumerate()
-            .filter(|(_, r)| {
-                lower(&r.analyte) == lower(&q.analyte)
-                    && lower(&r.method) == lower(&q.method)
-                    && lower(&r.matrix) == lower(&q.matrix)
-            })
+            .filter(|(_, r)| in_group(r, &q.analyte, &q.method) && same(&r.matrix, &q.matrix))
             .map(|(i, _)| i)
             .collect();
         if let Some(&i) = assoc.iter().find(|&&i| rows[i].unit != m.unit) {
@@ -390,13 +405,12 @@ pub fn evaluate(
             .and_then(|x| x.checked_div(spike))
             .ok_or_else(|| overflow(q))?;
         let pass = within(recovery, c.lcs_recovery_pct);
-        let key = (lower(&q.analyte), lower(&q.method));
         let affected: Vec<usize> = if pass {
             Vec::new()
         } else {
             rows.iter()
                 .enumerate()
-                .filter(|(_, r)| group(r) == key)
+                .filter(|(_, r)| in_group(r, &q.analyte, &q.method))
                 .map(|(i, _)| i)
                 .collect()
         };
@@ -654,18 +668,18 @@ pub fn evaluate(
         if cal[f].1 {
             continue;
         }
-        let key = (lower(&cal[f].0.analyte), lower(&cal[f].0.method));
-        let same: Vec<usize> = (0..cal.len())
-            .filter(|&j| (lower(&cal[j].0.analyte), lower(&cal[j].0.method)) == key)
+        let (fa, fm) = (cal[f].0.analyte.clone(), cal[f].0.method.clone());
+        let peers: Vec<usize> = (0..cal.len())
+            .filter(|&j| same(&cal[j].0.analyte, &fa) && same(&cal[j].0.method, &fm))
             .collect();
         let at = |j: usize| (cal[j].0.analyzed_on, cal[j].0.line);
-        let before = same
+        let before = peers
             .iter()
             .rev()
             .copied()
             .find(|&j| at(j) < at(f) && cal[j].1)
             .map(at);
-        let after = same
+        let after = peers
             .iter()
             .copied()
             .find(|&j| at(j) > at(f) && cal[j].1)
@@ -673,7 +687,7 @@ pub fn evaluate(
         let held: Vec<usize> = rows
             .iter()
             .enumerate()
-            .filter(|(_, r)| group(r) == key)
+            .filter(|(_, r)| in_group(r, &fa, &fm))
             .filter(|(_, r)| {
                 let t = (r.analyzed_on, r.line);
                 before.is_none_or(|b| t > b) && after.is_none_or(|a| t < a)
@@ -712,25 +726,28 @@ pub fn evaluate(
     checks.extend(cal.into_iter().map(|(_, _, c)| c));
 
     // Required QC kinds per analyte and method present among the samples.
-    let mut groups: Vec<(String, String, usize)> = Vec::new();
+    let mut groups: Vec<usize> = Vec::new();
     for (i, r) in rows.iter().enumerate() {
-        let k = group(r);
-        if !groups.iter().any(|(a, m, _)| (a, m) == (&k.0, &k.1)) {
-            groups.push((k.0, k.1, i));
+        if !groups
+            .iter()
+            .any(|&g| in_group(r, &rows[g].analyte, &rows[g].method))
+        {
+            groups.push(i);
         }
     }
-    for (analyte, method, first) in groups {
+    for first in groups {
+        let (analyte, method) = (rows[first].analyte.clone(), rows[first].method.clone());
         for kind in &config.required {
-            let present = qc_rows.iter().any(|q| {
-                q.kind == *kind && lower(&q.analyte) == analyte && lower(&q.method) == method
-            });
+            let present = qc_rows
+                .iter()
+                .any(|q| q.kind == *kind && same(&q.analyte, &analyte) && same(&q.method, &method));
             if present {
                 continue;
             }
             let affected: Vec<usize> = rows
                 .iter()
                 .enumerate()
-                .filter(|(_, r)| group(r) == (analyte.clone(), method.clone()))
+                .filter(|(_, r)| in_group(r, &analyte, &method))
                 .map(|(i, _)| i)
                 .collect();
             let r = &rows[first];

@@ -12,8 +12,14 @@ fn big_batch(t: &TestDir, rows: usize) {
     let mut csv = String::with_capacity(rows * 120);
     csv.push_str("lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,uncertainty_pct,spike_added\n");
     for analyte in ["Pb", "Cd"] {
-        let _ = writeln!(csv, "MB-1,,Method blank,method-blank,{analyte},paint,6010D,0.2,µg/L,1,0.100,50,2026-11-13,,,");
-        let _ = writeln!(csv, "LCS-1,,LCS,lcs,{analyte},paint,6010D,49,µg/L,1,0.100,50,2026-11-13,,,25");
+        let _ = writeln!(
+            csv,
+            "MB-1,,Method blank,method-blank,{analyte},paint,6010D,0.2,µg/L,1,0.100,50,2026-11-13,,,"
+        );
+        let _ = writeln!(
+            csv,
+            "LCS-1,,LCS,lcs,{analyte},paint,6010D,49,µg/L,1,0.100,50,2026-11-13,,,25"
+        );
     }
     for i in 0..rows {
         let analyte = if i % 2 == 0 { "Pb" } else { "Cd" };
