@@ -16,6 +16,7 @@ pub mod render;
 pub mod report;
 pub mod resolve;
 pub mod starter;
+pub mod study;
 pub mod units;
 
 pub use error::Error;

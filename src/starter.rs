@@ -33,7 +33,15 @@ pub const DEMO: &[(&str, &str)] = &[
         "rescreen-2611-058/results.csv",
         include_str!("../demo-batches/rescreen-2611-058/results.csv"),
     ),
+    (
+        "studies/cd-paint-2611.csv",
+        include_str!("../demo-batches/studies/cd-paint-2611.csv"),
+    ),
 ];
+
+/// The demo's limit study, its study id and the date its limits take effect.
+pub const DEMO_STUDY: (&str, &str, &str) =
+    ("studies/cd-paint-2611.csv", "MDL-2612-CD-PNT", "2026-12-01");
 
 /// The demo's batch folders, in the order the demo runs them.
 pub const DEMO_BATCHES: &[&str] = &[

@@ -69,6 +69,56 @@ pub fn run(a: Args) -> Result<i32, Error> {
         println!("-> issued {}\n", path.display());
         issued.push(path);
     }
+    let (study_file, study_id, effective) = limen::starter::DEMO_STUDY;
+    let study_path = ws_dir.join(study_file);
+    let file = study_path.display().to_string();
+    println!(
+        "$ limen study {file} --register {} --effective {effective} --study-id {study_id}",
+        ws_dir.join("limits.csv").display()
+    );
+    let groups = limen::study::groups(
+        &file,
+        limen::study::parse_study(&file, &limen::read::csvtable::read_file(&study_path)?)?,
+    )?;
+    let opts = limen::study::mdl::Options::default();
+    let results: Vec<_> = groups
+        .iter()
+        .map(|g| limen::study::mdl::compute(g, &opts))
+        .collect();
+    for r in &results {
+        println!("{}", limen::render::study::mdl_text(r));
+    }
+    let effective_date = limen::read::csvtable::parse_date(effective).unwrap_or_default();
+    let rows = limen::study::register_update::rows_for(
+        &results,
+        &ws.register,
+        effective_date,
+        study_id,
+        ws.lab.significant_figures,
+    );
+    limen::study::register_update::append(&ws_dir.join("limits.csv"), &rows).map_err(
+        |e| match e {
+            limen::study::register_update::UpdateError::Read(r) => Error::Read(r),
+            other => Error::Usage {
+                message: other.to_string(),
+                hint: other.hint(),
+            },
+        },
+    )?;
+    for r in &rows {
+        println!(
+            "-> register row added: {} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({}); batches analysed from that date use it.\n",
+            r.analyte,
+            r.matrix,
+            r.method,
+            r.mdl,
+            r.unit,
+            r.loq,
+            r.unit,
+            r.effective_from,
+            r.study_id
+        );
+    }
     println!("workspace: {}", ws_dir.display());
     println!("reports:   {}", reports_dir.display());
     for p in &issued {

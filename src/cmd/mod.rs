@@ -9,6 +9,7 @@ mod check;
 mod demo;
 mod init;
 mod issue;
+mod study;
 
 #[derive(Parser)]
 #[command(
@@ -32,6 +33,8 @@ enum Command {
     Issue(issue::Args),
     /// Create a starter workspace that `limen check` accepts as is.
     Init(init::Args),
+    /// Compute MDL, IDL and LOQ from a limit study and update the register.
+    Study(Box<study::Args>),
     /// Run the job on the embedded demo workspace.
     Demo(demo::Args),
 }
@@ -42,6 +45,7 @@ pub fn run() -> i32 {
         Command::Check(a) => check::run(a),
         Command::Issue(a) => issue::run(a),
         Command::Init(a) => init::run(a),
+        Command::Study(a) => study::run(*a),
         Command::Demo(a) => demo::run(a),
     };
     match result {

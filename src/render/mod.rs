@@ -2,6 +2,7 @@
 //! text; writing files is the caller's business.
 
 pub mod csv;
+pub mod study;
 pub mod table;
 
 use crate::report::Report;
