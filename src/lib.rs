@@ -7,8 +7,10 @@
 pub mod classify;
 pub mod error;
 pub mod fasthash;
+pub mod layout;
 pub mod numeric;
 pub mod output;
+pub mod pdf;
 pub mod problem;
 pub mod qc;
 pub mod read;

@@ -1,0 +1,515 @@
+//! PDF export: laid-out pages to bytes with printpdf's page operations.
+//! The embedded Liberation Sans (SIL OFL 1.1) is subset per document to the
+//! characters it uses. No I/O here.
+
+use crate::layout::{Item, Measure, Page};
+use printpdf::{
+    Color, FontId, Line, LinePoint, Op, PaintMode, ParsedFont, PdfDocument, PdfFont, PdfFontHandle,
+    PdfPage, PdfSaveOptions, Point, Pt, Rect, TextItem, TextMatrix,
+};
+use std::collections::{BTreeSet, HashMap};
+use std::sync::OnceLock;
+
+const REGULAR: &[u8] = include_bytes!("../report-templates/fonts/LiberationSans-Regular.ttf");
+const BOLD: &[u8] = include_bytes!("../report-templates/fonts/LiberationSans-Bold.ttf");
+
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum PdfError {
+    #[error("a document needs at least one page")]
+    NoPages,
+    #[error("page {page}: a position or size is not a finite number ({what})")]
+    NotFinite { page: usize, what: String },
+    #[error("the embedded font could not be read or subset: {0}")]
+    Font(String),
+}
+
+/// One face: advance widths per character, in em.
+pub struct Face {
+    bytes: &'static [u8],
+    parsed: ParsedFont,
+    advance: HashMap<char, f32>,
+    missing: f32,
+}
+
+impl Face {
+    fn load(bytes: &'static [u8]) -> Result<Face, PdfError> {
+        let mut warnings = Vec::new();
+        let parsed = ParsedFont::from_bytes(bytes, 0, &mut warnings)
+            .ok_or_else(|| PdfError::Font("cannot parse the embedded font".into()))?;
+        let em = parsed.units_per_em.max(1) as f32;
+        let advance = parsed
+            .codepoint_to_glyph
+            .iter()
+            .filter_map(|(cp, gid)| {
+                let ch = char::from_u32(*cp)?;
+                let w = *parsed.glyph_widths.get(gid)? as f32 / em;
+                Some((ch, w))
+            })
+            .collect::<HashMap<_, _>>();
+        let missing = advance.get(&'?').copied().unwrap_or(0.5);
+        Ok(Face {
+            bytes,
+            parsed,
+            advance,
+            missing,
+        })
+    }
+
+    pub fn has(&self, c: char) -> bool {
+        self.advance.contains_key(&c)
+    }
+
+    fn width(&self, text: &str) -> f32 {
+        text.chars()
+            .map(|c| self.advance.get(&c).copied().unwrap_or(self.missing))
+            .sum()
+    }
+
+    /// The face cut down to `chars` (and .notdef), as a font printpdf embeds whole.
+    fn subset(&self, chars: &BTreeSet<char>) -> Result<ParsedFont, PdfError> {
+        use allsorts::binary::read::ReadScope;
+        use allsorts::font_data::FontData;
+        let mut ids: Vec<u16> = chars
+            .iter()
+            .filter_map(|c| self.parsed.lookup_glyph_index(*c as u32))
+            .filter(|g| *g != 0)
+            .collect();
+        ids.sort_unstable();
+        ids.dedup();
+        ids.insert(0, 0);
+        let scope = ReadScope::new(self.bytes);
+        let file = scope
+            .read::<FontData<'_>>()
+            .map_err(|e| PdfError::Font(e.to_string()))?;
+        let provider = file
+            .table_provider(0)
+            .map_err(|e| PdfError::Font(e.to_string()))?;
+        let bytes = allsorts::subset::subset(
+            &provider,
+            &ids,
+            &allsorts::subset::SubsetProfile::Pdf,
+            allsorts::subset::CmapTarget::Unicode,
+        )
+        .map_err(|e| PdfError::Font(e.to_string()))?;
+        let mut warnings = Vec::new();
+        ParsedFont::from_bytes(&bytes, 0, &mut warnings)
+            .ok_or_else(|| PdfError::Font("the subset font does not parse".into()))
+    }
+}
+
+/// The embedded regular and bold faces, parsed once per process.
+pub struct Fonts {
+    pub regular: Face,
+    pub bold: Face,
+}
+
+impl Fonts {
+    pub fn get() -> Result<&'static Fonts, PdfError> {
+        static FONTS: OnceLock<Result<Fonts, PdfError>> = OnceLock::new();
+        FONTS
+            .get_or_init(|| {
+                Ok(Fonts {
+                    regular: Face::load(REGULAR)?,
+                    bold: Face::load(BOLD)?,
+                })
+            })
+            .as_ref()
+            .map_err(Clone::clone)
+    }
+
+    fn face(&self, bold: bool) -> &Face {
+        if bold { &self.bold } else { &self.regular }
+    }
+}
+
+impl Clone for PdfError {
+    fn clone(&self) -> Self {
+        match self {
+            PdfError::NoPages => PdfError::NoPages,
+            PdfError::NotFinite { page, what } => PdfError::NotFinite {
+                page: *page,
+                what: what.clone(),
+            },
+            PdfError::Font(s) => PdfError::Font(s.clone()),
+        }
+    }
+}
+
+impl Measure for Fonts {
+    fn width(&self, text: &str, size: f32, bold: bool) -> f32 {
+        self.face(bold).width(&clean(text)) * size
+    }
+}
+
+/// Text as the PDF can show it: control characters (newline, tab, CR),
+/// which would print as "?", become spaces.
+pub fn clean(text: &str) -> String {
+    text.chars()
+        .map(|c| if c.is_control() { ' ' } else { c })
+        .collect()
+}
+
+#[derive(Debug, Clone)]
+pub struct Meta {
+    pub title: String,
+    pub author: String,
+    pub subject: String,
+    pub creator: String,
+    /// Seconds since 1970 UTC, for the document's dates.
+    pub created: i64,
+}
+
+fn rgb((r, g, b): (f32, f32, f32)) -> Color {
+    Color::Rgb(printpdf::Rgb {
+        r,
+        g,
+        b,
+        icc_profile: None,
+    })
+}
+
+fn finite(page: usize, what: &str, values: &[f32]) -> Result<(), PdfError> {
+    if values.iter().all(|v| v.is_finite()) {
+        Ok(())
+    } else {
+        Err(PdfError::NotFinite {
+            page,
+            what: what.to_string(),
+        })
+    }
+}
+
+/// FNV-1a, hex: a stable id for the same bytes (no cryptographic claim).
+fn stable_id(bytes: &[u8]) -> String {
+    let mut h: u128 = 0x6c62272e07bb014262b821756295c58d;
+    for b in bytes {
+        h ^= *b as u128;
+        h = h.wrapping_mul(0x0000000001000000000000000000013B);
+    }
+    format!("{h:032X}")
+}
+
+/// One text run as its own text section that sets its font before showing
+/// anything: text shown before a font is set is invisible.
+fn text_ops(
+    font: &FontId,
+    x: f32,
+    y_from_bottom: f32,
+    size: f32,
+    color: (f32, f32, f32),
+    text: String,
+) -> [Op; 6] {
+    [
+        Op::StartTextSection,
+        Op::SetFont {
+            font: PdfFontHandle::External(font.clone()),
+            size: Pt(size),
+        },
+        Op::SetFillColor { col: rgb(color) },
+        Op::SetTextMatrix {
+            matrix: TextMatrix::Translate(Pt(x), Pt(y_from_bottom)),
+        },
+        Op::ShowText {
+            items: vec![TextItem::Text(text)],
+        },
+        Op::EndTextSection,
+    ]
+}
+
+/// Writes pages to PDF bytes. Characters the font lacks are drawn as "?"
+/// and returned, so the caller can say so.
+pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfError> {
+    if pages.is_empty() {
+        return Err(PdfError::NoPages);
+    }
+    let fonts = Fonts::get()?;
+    let mut used: [BTreeSet<char>; 2] = [BTreeSet::new(), BTreeSet::new()];
+    let mut missing = BTreeSet::new();
+    let shown = |text: &str, bold: bool, missing: &mut BTreeSet<char>| -> String {
+        clean(text)
+            .chars()
+            .map(|c| {
+                if fonts.face(bold).has(c) || c == ' ' {
+                    c
+                } else {
+                    missing.insert(c);
+                    '?'
+                }
+            })
+            .collect()
+    };
+    for p in pages {
+        for it in &p.items {
+            if let Item::Text { text, bold, .. } = it {
+                used[*bold as usize].extend(shown(text, *bold, &mut missing).chars());
+            }
+        }
+    }
+    let mut doc = PdfDocument::new(&meta.title);
+    let ids = [FontId("F1".into()), FontId("F2".into())];
+    for (k, set) in used.iter().enumerate() {
+        if !set.is_empty() {
+            let face = fonts.face(k == 1);
+            doc.resources
+                .fonts
+                .map
+                .insert(ids[k].clone(), PdfFont::new(face.subset(set)?));
+        }
+    }
+    for (n, p) in pages.iter().enumerate() {
+        let page_no = n + 1;
+        finite(page_no, "page size", &[p.width, p.height])?;
+        let h = p.height;
+        let mut ops = Vec::with_capacity(p.items.len() * 4);
+        for it in &p.items {
+            match it {
+                Item::Text {
+                    x,
+                    y,
+                    text,
+                    size,
+                    bold,
+                    color,
+                } => {
+                    finite(page_no, "text position", &[*x, *y, *size])?;
+                    let text = shown(text, *bold, &mut missing);
+                    if text.trim().is_empty() {
+                        continue;
+                    }
+                    ops.extend(text_ops(
+                        &ids[*bold as usize],
+                        *x,
+                        h - *y,
+                        *size,
+                        *color,
+                        text,
+                    ));
+                }
+                Item::Line {
+                    x1,
+                    y1,
+                    x2,
+                    y2,
+                    width,
+                    color,
+                } => {
+                    finite(page_no, "line", &[*x1, *y1, *x2, *y2, *width])?;
+                    ops.push(Op::SetOutlineColor { col: rgb(*color) });
+                    ops.push(Op::SetOutlineThickness { pt: Pt(*width) });
+                    ops.push(Op::DrawLine {
+                        line: Line {
+                            points: vec![
+                                LinePoint {
+                                    p: Point {
+                                        x: Pt(*x1),
+                                        y: Pt(h - *y1),
+                                    },
+                                    bezier: false,
+                                },
+                                LinePoint {
+                                    p: Point {
+                                        x: Pt(*x2),
+                                        y: Pt(h - *y2),
+                                    },
+                                    bezier: false,
+                                },
+                            ],
+                            is_closed: false,
+                        },
+                    });
+                }
+                Item::Rect {
+                    x,
+                    y,
+                    w,
+                    h: rh,
+                    color,
+                } => {
+                    finite(page_no, "rectangle", &[*x, *y, *w, *rh])?;
+                    ops.push(Op::SetFillColor { col: rgb(*color) });
+                    ops.push(Op::DrawRectangle {
+                        rectangle: Rect {
+                            x: Pt(*x),
+                            y: Pt(h - *y - *rh),
+                            width: Pt(*w),
+                            height: Pt(*rh),
+                            mode: Some(PaintMode::Fill),
+                            winding_order: None,
+                        },
+                    });
+                }
+            }
+        }
+        let mm = |pt: f32| printpdf::Mm(pt * 25.4 / 72.0);
+        doc.pages.push(PdfPage::new(mm(p.width), mm(p.height), ops));
+    }
+    let date = printpdf::date::OffsetDateTime::from_unix_timestamp(meta.created)
+        .map_err(|e| PdfError::Font(e.to_string()))?;
+    let info = &mut doc.metadata.info;
+    info.document_title = meta.title.clone();
+    info.author = meta.author.clone();
+    info.subject = meta.subject.clone();
+    info.creator = meta.creator.clone();
+    info.producer = meta.creator.clone();
+    info.identifier = meta.title.clone();
+    info.creation_date = date;
+    info.modification_date = date;
+    info.metadata_date = date;
+    let mut warnings = Vec::new();
+    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
+    fix_document_id(&mut bytes);
+    Ok((bytes, missing.into_iter().collect()))
+}
+
+/// printpdf writes a random /ID pair; the same document must give the same
+/// bytes, so both strings are overwritten in place (same length, so the
+/// cross-reference offsets stay valid) with an id derived from the rest.
+fn fix_document_id(bytes: &mut [u8]) {
+    let Some(at) = bytes.windows(3).rposition(|w| w == b"/ID") else {
+        return;
+    };
+    let tail = &bytes[at..];
+    let mut spans = Vec::new();
+    let mut i = 0;
+    while i < tail.len() && spans.len() < 2 {
+        if tail[i] == b'(' {
+            if let Some(end) = tail[i + 1..].iter().position(|b| *b == b')') {
+                spans.push((at + i + 1, at + i + 1 + end));
+                i += end + 1;
+            }
+        } else if tail[i] == b']' {
+            break;
+        }
+        i += 1;
+    }
+    let mut copy = bytes.to_vec();
+    for (s, e) in &spans {
+        copy[*s..*e].fill(b'0');
+    }
+    let id = stable_id(&copy);
+    for (s, e) in spans {
+        for (k, b) in bytes[s..e].iter_mut().enumerate() {
+            *b = id.as_bytes()[k % id.len()];
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn meta() -> Meta {
+        Meta {
+            title: "T".into(),
+            author: "A".into(),
+            subject: "S".into(),
+            creator: "limen test".into(),
+            created: 1_795_000_000,
+        }
+    }
+
+    fn page(items: Vec<Item>) -> Page {
+        Page {
+            width: 595.0,
+            height: 842.0,
+            items,
+        }
+    }
+
+    fn text(t: &str) -> Item {
+        Item::Text {
+            x: 50.0,
+            y: 100.0,
+            text: t.into(),
+            size: 12.0,
+            bold: false,
+            color: (0.0, 0.0, 0.0),
+        }
+    }
+
+    #[test]
+    fn no_pages_is_an_error_not_an_invalid_file() {
+        assert_eq!(write(&[], &meta()).unwrap_err(), PdfError::NoPages);
+    }
+
+    #[test]
+    fn nan_coordinates_are_refused() {
+        let mut t = text("x");
+        if let Item::Text { x, .. } = &mut t {
+            *x = f32::NAN;
+        }
+        assert!(matches!(
+            write(&[page(vec![t])], &meta()),
+            Err(PdfError::NotFinite { page: 1, .. })
+        ));
+        let r = Item::Rect {
+            x: 0.0,
+            y: 0.0,
+            w: f32::INFINITY,
+            h: 1.0,
+            color: (0.0, 0.0, 0.0),
+        };
+        assert!(matches!(
+            write(&[page(vec![r])], &meta()),
+            Err(PdfError::NotFinite { .. })
+        ));
+    }
+
+    #[test]
+    fn control_characters_become_spaces() {
+        assert_eq!(clean("a\tb\nc\rd"), "a b c d");
+    }
+
+    #[test]
+    fn every_text_run_sets_its_font_first() {
+        let ops = text_ops(
+            &FontId("F1".into()),
+            1.0,
+            2.0,
+            9.0,
+            (0.0, 0.0, 0.0),
+            "x".into(),
+        );
+        let font_at = ops
+            .iter()
+            .position(|o| matches!(o, Op::SetFont { .. }))
+            .unwrap();
+        let show_at = ops
+            .iter()
+            .position(|o| matches!(o, Op::ShowText { .. }))
+            .unwrap();
+        assert!(matches!(ops[0], Op::StartTextSection));
+        assert!(font_at < show_at);
+    }
+
+    #[test]
+    fn a_subset_font_keeps_the_file_small() {
+        let (bytes, missing) = write(
+            &[page(vec![text("Pb ≤ 90 mg/kg, 25 µg/L"), text("δ")])],
+            &meta(),
+        )
+        .unwrap();
+        assert!(bytes.starts_with(b"%PDF-"));
+        assert!(missing.is_empty(), "{missing:?}");
+        assert!(
+            bytes.len() < 40_000,
+            "{} bytes: the font is not subset",
+            bytes.len()
+        );
+    }
+
+    #[test]
+    fn unknown_characters_are_reported() {
+        let (_, missing) = write(&[page(vec![text("铅")])], &meta()).unwrap();
+        assert_eq!(missing, vec!['铅']);
+    }
+
+    #[test]
+    fn same_input_same_bytes() {
+        let pages = [page(vec![text("same")])];
+        assert_eq!(
+            write(&pages, &meta()).unwrap().0,
+            write(&pages, &meta()).unwrap().0
+        );
+    }
+}
