@@ -17,6 +17,10 @@ pub enum Error {
     Eval(#[from] EvalError),
     #[error(transparent)]
     Output(#[from] OutputError),
+    #[error(transparent)]
+    Render(#[from] crate::render::RenderError),
+    #[error(transparent)]
+    Template(#[from] crate::templates::TemplateError),
     #[error("{message}")]
     Usage { message: String, hint: String },
 }
@@ -27,6 +31,8 @@ impl Error {
             Error::Read(e) => e.hint(),
             Error::Eval(e) => e.hint(),
             Error::Output(e) => e.hint(),
+            Error::Render(e) => e.hint(),
+            Error::Template(e) => e.hint(),
             Error::Usage { hint, .. } => hint.clone(),
         }
     }

@@ -7,6 +7,7 @@
 pub mod classify;
 pub mod error;
 pub mod fasthash;
+pub mod issue;
 pub mod layout;
 pub mod numeric;
 pub mod output;
@@ -19,6 +20,7 @@ pub mod report;
 pub mod resolve;
 pub mod starter;
 pub mod study;
+pub mod templates;
 pub mod units;
 
 pub use error::Error;

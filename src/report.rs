@@ -67,6 +67,22 @@ pub struct Header {
     pub compare: Compare,
     pub significant_figures: u32,
     pub page_size: PageSize,
+    /// Method id and description (from lab.toml) for each method used.
+    pub methods: Vec<(String, String)>,
+    /// Filled by the ledger once the report is recorded.
+    pub verification_code: Option<String>,
+    /// Set on a re-issue: what this revision replaces, and why.
+    pub replaces: Option<Replaces>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Replaces {
+    pub report: String,
+    pub revision: u32,
+    pub issued_on: NaiveDate,
+    pub reason: String,
+    /// One line per changed result, in words.
+    pub changed: Vec<String>,
 }
 
 /// One client result as the certificate states it.
@@ -174,6 +190,9 @@ pub fn build(
         compare: lab.compare,
         significant_figures: lab.significant_figures,
         page_size: lab.page_size,
+        methods: Vec::new(),
+        verification_code: None,
+        replaces: None,
     };
     let mut rows = Vec::with_capacity(batch.results_bytes.len() / 110);
     let mut qc = Vec::new();
@@ -213,6 +232,18 @@ pub fn build(
     })?;
     rows.shrink_to_fit();
     let evaluated = crate::qc::evaluate(ws, &batch.results_file, &qc, &mut rows)?;
+    let mut header = header;
+    for r in &rows {
+        if !header.methods.iter().any(|(m, _)| m.as_str() == &*r.method) {
+            let description = lab
+                .methods
+                .iter()
+                .find(|(id, _)| id.eq_ignore_ascii_case(&r.method))
+                .map(|(_, d)| d.clone())
+                .unwrap_or_default();
+            header.methods.push((r.method.to_string(), description));
+        }
+    }
     problems.extend(evaluated.problems);
     Ok(Report {
         header,

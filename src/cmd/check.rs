@@ -1,6 +1,5 @@
 use super::{blocked_code, colour_stdout, load, run_info};
 use limen::Error;
-use limen::render::Render;
 use limen::render::csv::Csv;
 use std::io::Write;
 use std::path::PathBuf;
@@ -32,7 +31,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
                 out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes());
         }
         Format::Csv => {
-            let _ = out.write_all(&Csv.render(&report));
+            let _ = out.write_all(&Csv.bytes(&report));
             for p in &report.problems {
                 eprintln!("blocked: {p}");
                 eprintln!("hint: {}", p.hint);

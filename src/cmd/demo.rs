@@ -2,8 +2,6 @@ use super::{colour_stdout, run_info};
 use limen::Error;
 use limen::error::EXIT_OK;
 use limen::read::{Batch, Workspace};
-use limen::render::Render;
-use limen::render::csv::Csv;
 use std::path::{Path, PathBuf};
 
 /// Marks a folder as the demo's own, so a re-run may clear it.
@@ -51,6 +49,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let reports_dir = a.out.join("reports");
     limen::starter::lay_down(&ws_dir, limen::starter::DEMO)?;
     let ws = Workspace::load(&ws_dir)?;
+    let templates = limen::templates::Templates::load(Some(&ws_dir))?;
     let run = run_info()?;
     let colour = colour_stdout();
     println!("limen demo: {} (an invented lab and client)\n", ws.lab.name);
@@ -64,10 +63,15 @@ pub fn run(a: Args) -> Result<i32, Error> {
             println!("-> not issued: the batch is blocked, as a lab would hold it.\n");
             continue;
         }
-        let file = format!("{}.{}", report.header.report, Csv.extension());
-        let path = limen::output::write_new(&reports_dir, &file, &Csv.render(&report))?;
-        println!("-> issued {}\n", path.display());
-        issued.push(path);
+        let (files, warnings) = limen::issue::render(&report, &templates)?;
+        for w in warnings {
+            eprintln!("warning: {w}");
+        }
+        for path in limen::issue::write_all(&reports_dir, &files)? {
+            println!("-> issued {}", path.display());
+            issued.push(path);
+        }
+        println!();
     }
     let (study_file, study_id, effective) = limen::starter::DEMO_STUDY;
     let study_path = ws_dir.join(study_file);

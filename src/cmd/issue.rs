@@ -1,8 +1,6 @@
 use super::{load, run_info};
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
-use limen::render::Render;
-use limen::render::csv::Csv;
 use std::path::PathBuf;
 
 #[derive(clap::Args)]
@@ -25,8 +23,10 @@ pub struct Args {
 pub fn run(a: Args) -> Result<i32, Error> {
     let run = run_info()?;
     let mut reports = Vec::new();
+    let mut templates = Vec::new();
     for dir in &a.batches {
         let (ws, batch) = load(dir, a.workspace.as_deref())?;
+        templates.push(limen::templates::Templates::load(Some(&ws.root))?);
         let mut report = limen::report::build(&ws, &batch, 0, &run)?;
         if let Some(reason) = &a.accept_qc {
             if reason.trim().is_empty() {
@@ -50,18 +50,27 @@ pub fn run(a: Args) -> Result<i32, Error> {
         eprintln!("hint: run `limen check` on the batch, resolve each problem, then issue again");
         return Ok(EXIT_BLOCKED);
     }
-    let names: Vec<String> = reports
-        .iter()
-        .map(|r| format!("{}.{}", r.header.report, Csv.extension()))
-        .collect();
-    limen::output::check_free(&a.out, &names)?;
-    for (r, name) in reports.iter().zip(&names) {
-        let path = limen::output::write_new(&a.out, name, &Csv.render(r))?;
+    let mut files = Vec::new();
+    let mut counts = Vec::new();
+    for (r, t) in reports.iter().zip(&templates) {
+        let (f, warnings) = limen::issue::render(r, t)?;
+        for w in warnings {
+            eprintln!("warning: {w}");
+        }
+        counts.push((r.header.report.clone(), r.rows.len(), f.len()));
+        files.extend(f);
+    }
+    let paths = limen::issue::write_all(&a.out, &files)?;
+    let mut paths = paths.iter();
+    for (report, results, n) in counts {
+        let written: Vec<String> = paths
+            .by_ref()
+            .take(n)
+            .map(|p| p.display().to_string())
+            .collect();
         println!(
-            "issued {} ({} results): {}",
-            r.header.report,
-            r.rows.len(),
-            path.display()
+            "issued {report} ({results} results): {}",
+            written.join(", ")
         );
     }
     Ok(EXIT_OK)

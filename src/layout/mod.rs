@@ -203,6 +203,8 @@ pub struct Row {
 #[derive(Debug, Clone)]
 pub struct Table {
     pub columns: Vec<Column>,
+    /// False for a plain two-column list with no heading row.
+    pub show_header: bool,
     pub header: Style,
     pub body: Style,
     pub rows: Vec<Row>,
@@ -340,6 +342,9 @@ impl<'m> Flow<'m> {
     }
 
     fn draw_header(&mut self, table: &Table, decimal_x: &[f32]) -> f32 {
+        if !table.show_header {
+            return 0.0;
+        }
         let lh = table.header.line_height();
         let heights: Vec<Vec<String>> = table
             .columns
@@ -408,7 +413,9 @@ impl<'m> Flow<'m> {
             x += col.width;
         }
         let lh = table.body.line_height();
-        let header_h = {
+        let header_h = if !table.show_header {
+            0.0
+        } else {
             let lines = table
                 .columns
                 .iter()

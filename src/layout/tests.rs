@@ -66,6 +66,7 @@ fn table(rows: usize) -> Table {
                 align: Align::Decimal,
             },
         ],
+        show_header: true,
         header: Style::new(8.0).bold(),
         body: Style::new(8.0),
         rows: (0..rows)

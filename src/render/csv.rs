@@ -98,7 +98,16 @@ impl Render for Csv {
         "csv"
     }
 
-    fn render(&self, report: &Report) -> Vec<u8> {
+    fn render(&self, report: &Report) -> Result<super::Output, super::RenderError> {
+        Ok(super::Output {
+            bytes: self.bytes(report),
+            warnings: Vec::new(),
+        })
+    }
+}
+
+impl Csv {
+    pub fn bytes(&self, report: &Report) -> Vec<u8> {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
             .from_writer(Vec::with_capacity(180 * (report.rows.len() + 1)));
