@@ -1,0 +1,159 @@
+//! Certificates checked through an independent reader: poppler's pdftotext
+//! (installed by .ci/run).
+
+mod util;
+use std::process::Command;
+use util::TestDir;
+
+/// The text of each page, as pdftotext lays it out.
+fn pages(path: &std::path::Path) -> Vec<String> {
+    let out = Command::new("pdftotext")
+        .args(["-layout", "-enc", "UTF-8"])
+        .arg(path)
+        .arg("-")
+        .output()
+        .expect("pdftotext (poppler-utils) must be installed to check certificates");
+    assert!(out.status.success(), "pdftotext failed: {}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8(out.stdout).unwrap();
+    let mut pages: Vec<String> = text.split('\x0c').map(String::from).collect();
+    if pages.last().is_some_and(|p| p.trim().is_empty()) {
+        pages.pop();
+    }
+    pages
+}
+
+fn demo(t: &TestDir) {
+    let r = t.limen(&["demo", "--out", "out"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+}
+
+#[test]
+fn every_page_names_the_report_revision_and_page_of_n() {
+    let t = TestDir::new("pdf-pages");
+    demo(&t);
+    for report in ["COA-2611-041", "COA-2611-052"] {
+        let p = pages(&t.path(&format!("out/reports/{report}.pdf")));
+        let n = p.len();
+        assert!(n >= 1);
+        for (i, page) in p.iter().enumerate() {
+            assert!(page.contains(&format!("Report {report} · Revision 0")), "page {} of {report}", i + 1);
+            assert!(page.contains(&format!("Page {} of {n}", i + 1)), "page {} of {report}", i + 1);
+        }
+        assert!(p[n - 1].contains("End of report"));
+        assert!(!p[0].contains("End of report") || n == 1);
+    }
+}
+
+#[test]
+fn every_result_appears_with_the_trade_characters() {
+    let t = TestDir::new("pdf-results");
+    demo(&t);
+    let csv = t.read("out/reports/COA-2611-052.csv");
+    let text = pages(&t.path("out/reports/COA-2611-052.pdf")).join("\n");
+    for line in csv.lines().skip(1) {
+        let cells: Vec<&str> = line.split(',').collect();
+        let (lab_id, reported) = (cells[2], cells[cells.len() - 13]);
+        assert!(text.contains(lab_id), "{lab_id} missing");
+        assert!(text.contains(reported), "{lab_id}: {reported} missing");
+    }
+    assert!(text.contains("µg/L"), "µ must survive as µ");
+    assert!(text.contains("≤ 20 %"), "≤ must survive as ≤");
+    assert!(text.contains("Stoneware mug, speckled"));
+}
+
+#[test]
+fn the_footnote_explains_only_the_states_present() {
+    let t = TestDir::new("pdf-footnote");
+    demo(&t);
+    let furniture = pages(&t.path("out/reports/COA-2611-041.pdf")).join("\n");
+    let ceramics = pages(&t.path("out/reports/COA-2611-052.pdf")).join("\n");
+    for text in [&furniture, &ceramics] {
+        assert!(text.contains("Not detected: the measured amount was below"));
+        assert!(text.contains("Detected, below LOQ: the analyte is present"));
+        assert!(text.contains("Quantified: the amount was at or above the LOQ"));
+        assert!(!text.contains("Above range: the instrument reading"));
+        assert!(text.contains("40 CFR Part 136 Appendix B"));
+        assert!(text.contains("Cautions"));
+    }
+    // Only the furniture report has inconclusive results (P05's 12 mg chip).
+    assert!(furniture.contains("Inconclusive: for P05 Pb, P05 Cd"));
+    assert!(!ceramics.contains("Inconclusive: for"));
+    // Guarded rule on one, simple on the other.
+    assert!(furniture.contains("guard band equal to the expanded measurement uncertainty"));
+    assert!(ceramics.contains("simple acceptance"));
+    // Qualifier legend only where qualifiers are used.
+    assert!(furniture.contains("B: the method blank contained the analyte"));
+    assert!(!ceramics.contains("B: the method blank contained the analyte"));
+}
+
+#[test]
+fn same_inputs_give_identical_bytes() {
+    let t = TestDir::new("pdf-same");
+    t.demo_workspace("ws");
+    let a = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "a"]);
+    let b = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "b"]);
+    assert_eq!((a.code, b.code), (0, 0), "{}{}", a.stderr, b.stderr);
+    let (pa, pb) = (std::fs::read(t.path("a/COA-2611-052.pdf")).unwrap(), std::fs::read(t.path("b/COA-2611-052.pdf")).unwrap());
+    assert_eq!(pa, pb);
+    assert!(pa.len() < 100_000, "one-page certificate of {} bytes", pa.len());
+    // Two reports issued by one process are each reproducible too.
+    let c = t.limen(&["issue", "ws/furniture-jewellery-2611-041", "ws/ceramics-2611-052", "--out", "c"]);
+    assert_eq!(c.code, 0, "{}", c.stderr);
+    assert_eq!(std::fs::read(t.path("c/COA-2611-052.pdf")).unwrap(), pa);
+}
+
+#[test]
+fn a_long_report_repeats_its_header_and_never_splits_a_row() {
+    let t = TestDir::new("pdf-long");
+    t.write("ws/lab.toml", "name='Long Lab'\naddress='1 Road'\nsignatory='S'\n[qc]\nrequired=[]\n");
+    t.write("ws/limits.csv", "analyte,matrix,method,unit,mdl,loq,effective_from,study_id\nPb,paint,6010D,ug/L,8,25,2025-01-01,S1\n");
+    t.write("ws/specs.csv", "spec,analyte,matrix,limit,unit,citation,effective_from\nP,Pb,paint,90,mg/kg,c,2009-01-01\n");
+    t.write("ws/b/batch.toml", "batch='L'\nreport='LONG-1'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nreceived_on=2026-11-10\nresults='r.csv'\n");
+    let mut csv = String::from("lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n");
+    for i in 0..300 {
+        csv.push_str(&format!(
+            "S{i:04},C{i:04},Painted test panel from lot tail{i:04},sample,Pb,paint,6010D,{}.{},ug/L,1,0.100,50,2026-11-13,P\n",
+            10 + i % 300,
+            i % 10
+        ));
+    }
+    t.write("ws/b/r.csv", csv);
+    let r = t.limen(&["issue", "ws/b", "--out", "out"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let p = pages(&t.path("out/LONG-1.pdf"));
+    assert!(p.len() >= 10, "{} pages", p.len());
+    let page_of = |needle: &str| p.iter().position(|pg| pg.contains(needle));
+    for i in 0..300 {
+        let id = format!("S{i:04}");
+        let at = page_of(&id).unwrap_or_else(|| panic!("{id} missing"));
+        // The wrapped second line of the row's description is on the same page.
+        assert_eq!(page_of(&format!("tail{i:04}")), Some(at), "{id} split across pages");
+        assert!(p[at].contains("Lab ID") && p[at].contains("Verdict"), "no table header on page {}", at + 1);
+    }
+}
+
+#[test]
+fn characters_the_font_lacks_are_reported() {
+    let t = TestDir::new("pdf-glyph");
+    t.demo_workspace("ws");
+    let batch = t.read("ws/ceramics-2611-052/batch.toml").replace("Marlow & Finch Home Imports Ltd", "Marlow & Finch 铅 Ltd");
+    t.write("ws/ceramics-2611-052/batch.toml", batch);
+    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(r.stderr.contains("warning: COA-2611-052: the certificate font has no glyph for '铅' (U+94C5)"), "{}", r.stderr);
+}
+
+#[test]
+fn a_workspace_template_changes_the_wording() {
+    let t = TestDir::new("pdf-template");
+    t.demo_workspace("ws");
+    t.write("ws/templates/title.hbs", "Test Report for {{client_name}}");
+    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(pages(&t.path("out/COA-2611-052.pdf"))[0].contains("Test Report for Marlow & Finch Home Imports Ltd"));
+    t.write("ws/templates/title.hbs", "Report for {{client}}");
+    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out2"]);
+    assert_eq!(r.code, 2, "a missing variable is an error in strict mode");
+    assert!(r.stderr.contains("title.hbs"), "{}", r.stderr);
+    assert!(!t.exists("out2/COA-2611-052.csv"), "nothing is written when the certificate fails");
+}
