@@ -87,3 +87,122 @@ fn check_one_million_rows_to_csv() {
         println!("{}", line.trim());
     }
 }
+
+const ANALYTES: [&str; 8] = ["Pb", "Cd", "As", "Hg", "Cr", "Ba", "Sb", "Se"];
+
+fn pdf_workspace(t: &TestDir) {
+    t.write(
+        "ws/lab.toml",
+        "name='Bench Lab'\naddress='1 Bench Road'\nsignatory='B. Analyst'\n[qc]\nrequired=[]\n",
+    );
+    let mut limits = String::from(
+        "analyte,matrix,method,unit,mdl,loq,effective_from,upper_range,upper_range_unit,study_id\n",
+    );
+    let mut specs = String::from("spec,analyte,matrix,limit,unit,citation,effective_from\n");
+    for a in ANALYTES {
+        limits.push_str(&format!(
+            "{a},paint,6010D,ug/L,8,25,2025-01-01,5000,ug/L,S-{a}\n"
+        ));
+        specs.push_str(&format!(
+            "L-{a},{a},paint,90,mg/kg,bench limit,2009-01-01\n"
+        ));
+    }
+    t.write("ws/limits.csv", limits);
+    t.write("ws/specs.csv", specs);
+}
+
+fn pdf_batch(t: &TestDir, dir: &str, report: &str, samples: usize) {
+    t.write(
+        &format!("ws/{dir}/batch.toml"),
+        format!("batch='{report}'\nreport='{report}'\nclient_name='Bench Client'\nclient_address='2 Client Street'\nclient_contact='C. Contact'\nreceived_on=2026-11-10\nresults='r.csv'\n"),
+    );
+    let mut csv = String::from(
+        "lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n",
+    );
+    for i in 0..samples {
+        for (k, a) in ANALYTES.iter().enumerate() {
+            let _ = writeln!(
+                csv,
+                "S{i:05},C{i:05},Painted panel {i} from the bench series,sample,{a},paint,6010D,{}.{},ug/L,1,0.100,50,2026-11-13,L-{a}",
+                (i * 37 + k * 11) % 400,
+                k
+            );
+        }
+    }
+    t.write(&format!("ws/{dir}/r.csv"), csv);
+}
+
+fn timed_issue(t: &TestDir, args: &[&str]) -> (f64, String) {
+    let start = Instant::now();
+    let out = std::process::Command::new("/usr/bin/time")
+        .arg("-v")
+        .arg(env!("CARGO_BIN_EXE_limen"))
+        .args(args)
+        .current_dir(&t.root)
+        .env("SOURCE_DATE_EPOCH", "1795000000")
+        .output()
+        .unwrap();
+    let secs = start.elapsed().as_secs_f64();
+    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
+    assert!(out.status.success(), "{stderr}");
+    let rss = stderr
+        .lines()
+        .find(|l| l.contains("Maximum resident set size"))
+        .map(|l| l.trim().to_string())
+        .unwrap_or_default();
+    (secs, rss)
+}
+
+#[test]
+#[ignore]
+fn certificates_large_and_many() {
+    let t = TestDir::new("bench-pdf");
+    pdf_workspace(&t);
+    pdf_batch(&t, "big", "BIG-PDF", 1000);
+    let (secs, rss) = timed_issue(&t, &["issue", "ws/big", "--out", "out"]);
+    let size = std::fs::metadata(t.path("out/BIG-PDF.pdf")).unwrap().len();
+    let pages = pdfinfo_pages(&t.path("out/BIG-PDF.pdf")).expect("pdfinfo (poppler-utils)");
+    println!(
+        "1000 samples x 8 analytes: {pages} pages in {secs:.2} s ({:.0} pages/s), {size} bytes; {rss}",
+        pages as f64 / secs
+    );
+
+    let mut dirs = Vec::new();
+    for i in 0..500 {
+        pdf_batch(&t, &format!("one{i:03}"), &format!("ONE-{i:03}"), 1);
+        dirs.push(format!("ws/one{i:03}"));
+    }
+    let mut args = vec!["issue"];
+    args.extend(dirs.iter().map(String::as_str));
+    args.extend(["--out", "many"]);
+    let (secs, rss) = timed_issue(&t, &args);
+    let sizes: Vec<u64> = (0..500)
+        .map(|i| {
+            std::fs::metadata(t.path(&format!("many/ONE-{i:03}.pdf")))
+                .unwrap()
+                .len()
+        })
+        .collect();
+    let pages: usize = (0..500)
+        .map(|i| {
+            pdfinfo_pages(&t.path(&format!("many/ONE-{i:03}.pdf")))
+                .expect("pdfinfo (poppler-utils)")
+        })
+        .sum();
+    println!(
+        "500 single-sample reports: {pages} pages in {secs:.2} s ({:.0} pages/s), {} to {} bytes each; {rss}",
+        pages as f64 / secs,
+        sizes.iter().min().unwrap(),
+        sizes.iter().max().unwrap()
+    );
+}
+
+fn pdfinfo_pages(path: &std::path::Path) -> Option<usize> {
+    let out = std::process::Command::new("pdfinfo")
+        .arg(path)
+        .output()
+        .ok()?;
+    String::from_utf8_lossy(&out.stdout)
+        .lines()
+        .find_map(|l| l.strip_prefix("Pages:").map(|v| v.trim().parse().ok()))?
+}

@@ -309,6 +309,13 @@ fn init_gives_a_workspace_that_checks() {
     let r = t.limen(&["check", "lab/example-batch"]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
     assert!(r.stdout.contains("S001"));
+    assert_eq!(
+        t.read("lab/templates/cautions.hbs"),
+        std::fs::read_to_string(util::repo().join("report-templates/cautions.hbs")).unwrap()
+    );
+    let r = t.limen(&["issue", "lab/example-batch", "--out", "out"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(t.exists("out/COA-EXAMPLE-001.pdf"));
     let r = t.limen(&["init", "lab"]);
     assert_eq!(r.code, 2, "init must not overwrite");
 }

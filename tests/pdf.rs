@@ -13,7 +13,11 @@ fn pages(path: &std::path::Path) -> Vec<String> {
         .arg("-")
         .output()
         .expect("pdftotext (poppler-utils) must be installed to check certificates");
-    assert!(out.status.success(), "pdftotext failed: {}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "pdftotext failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let text = String::from_utf8(out.stdout).unwrap();
     let mut pages: Vec<String> = text.split('\x0c').map(String::from).collect();
     if pages.last().is_some_and(|p| p.trim().is_empty()) {
@@ -36,8 +40,16 @@ fn every_page_names_the_report_revision_and_page_of_n() {
         let n = p.len();
         assert!(n >= 1);
         for (i, page) in p.iter().enumerate() {
-            assert!(page.contains(&format!("Report {report} · Revision 0")), "page {} of {report}", i + 1);
-            assert!(page.contains(&format!("Page {} of {n}", i + 1)), "page {} of {report}", i + 1);
+            assert!(
+                page.contains(&format!("Report {report} · Revision 0")),
+                "page {} of {report}",
+                i + 1
+            );
+            assert!(
+                page.contains(&format!("Page {} of {n}", i + 1)),
+                "page {} of {report}",
+                i + 1
+            );
         }
         assert!(p[n - 1].contains("End of report"));
         assert!(!p[0].contains("End of report") || n == 1);
@@ -93,11 +105,24 @@ fn same_inputs_give_identical_bytes() {
     let a = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "a"]);
     let b = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "b"]);
     assert_eq!((a.code, b.code), (0, 0), "{}{}", a.stderr, b.stderr);
-    let (pa, pb) = (std::fs::read(t.path("a/COA-2611-052.pdf")).unwrap(), std::fs::read(t.path("b/COA-2611-052.pdf")).unwrap());
+    let (pa, pb) = (
+        std::fs::read(t.path("a/COA-2611-052.pdf")).unwrap(),
+        std::fs::read(t.path("b/COA-2611-052.pdf")).unwrap(),
+    );
     assert_eq!(pa, pb);
-    assert!(pa.len() < 100_000, "one-page certificate of {} bytes", pa.len());
+    assert!(
+        pa.len() < 100_000,
+        "one-page certificate of {} bytes",
+        pa.len()
+    );
     // Two reports issued by one process are each reproducible too.
-    let c = t.limen(&["issue", "ws/furniture-jewellery-2611-041", "ws/ceramics-2611-052", "--out", "c"]);
+    let c = t.limen(&[
+        "issue",
+        "ws/furniture-jewellery-2611-041",
+        "ws/ceramics-2611-052",
+        "--out",
+        "c",
+    ]);
     assert_eq!(c.code, 0, "{}", c.stderr);
     assert_eq!(std::fs::read(t.path("c/COA-2611-052.pdf")).unwrap(), pa);
 }
@@ -105,11 +130,16 @@ fn same_inputs_give_identical_bytes() {
 #[test]
 fn a_long_report_repeats_its_header_and_never_splits_a_row() {
     let t = TestDir::new("pdf-long");
-    t.write("ws/lab.toml", "name='Long Lab'\naddress='1 Road'\nsignatory='S'\n[qc]\nrequired=[]\n");
+    t.write(
+        "ws/lab.toml",
+        "name='Long Lab'\naddress='1 Road'\nsignatory='S'\n[qc]\nrequired=[]\n",
+    );
     t.write("ws/limits.csv", "analyte,matrix,method,unit,mdl,loq,effective_from,study_id\nPb,paint,6010D,ug/L,8,25,2025-01-01,S1\n");
     t.write("ws/specs.csv", "spec,analyte,matrix,limit,unit,citation,effective_from\nP,Pb,paint,90,mg/kg,c,2009-01-01\n");
     t.write("ws/b/batch.toml", "batch='L'\nreport='LONG-1'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nreceived_on=2026-11-10\nresults='r.csv'\n");
-    let mut csv = String::from("lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n");
+    let mut csv = String::from(
+        "lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n",
+    );
     for i in 0..300 {
         csv.push_str(&format!(
             "S{i:04},C{i:04},Painted test panel from lot tail{i:04},sample,Pb,paint,6010D,{}.{},ug/L,1,0.100,50,2026-11-13,P\n",
@@ -127,8 +157,16 @@ fn a_long_report_repeats_its_header_and_never_splits_a_row() {
         let id = format!("S{i:04}");
         let at = page_of(&id).unwrap_or_else(|| panic!("{id} missing"));
         // The wrapped second line of the row's description is on the same page.
-        assert_eq!(page_of(&format!("tail{i:04}")), Some(at), "{id} split across pages");
-        assert!(p[at].contains("Lab ID") && p[at].contains("Verdict"), "no table header on page {}", at + 1);
+        assert_eq!(
+            page_of(&format!("tail{i:04}")),
+            Some(at),
+            "{id} split across pages"
+        );
+        assert!(
+            p[at].contains("Lab ID") && p[at].contains("Verdict"),
+            "no table header on page {}",
+            at + 1
+        );
     }
 }
 
@@ -136,11 +174,18 @@ fn a_long_report_repeats_its_header_and_never_splits_a_row() {
 fn characters_the_font_lacks_are_reported() {
     let t = TestDir::new("pdf-glyph");
     t.demo_workspace("ws");
-    let batch = t.read("ws/ceramics-2611-052/batch.toml").replace("Marlow & Finch Home Imports Ltd", "Marlow & Finch 铅 Ltd");
+    let batch = t
+        .read("ws/ceramics-2611-052/batch.toml")
+        .replace("Marlow & Finch Home Imports Ltd", "Marlow & Finch 铅 Ltd");
     t.write("ws/ceramics-2611-052/batch.toml", batch);
     let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
-    assert!(r.stderr.contains("warning: COA-2611-052: the certificate font has no glyph for '铅' (U+94C5)"), "{}", r.stderr);
+    assert!(
+        r.stderr
+            .contains("warning: COA-2611-052: the certificate font has no glyph for '铅' (U+94C5)"),
+        "{}",
+        r.stderr
+    );
 }
 
 #[test]
@@ -150,10 +195,16 @@ fn a_workspace_template_changes_the_wording() {
     t.write("ws/templates/title.hbs", "Test Report for {{client_name}}");
     let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
-    assert!(pages(&t.path("out/COA-2611-052.pdf"))[0].contains("Test Report for Marlow & Finch Home Imports Ltd"));
+    assert!(
+        pages(&t.path("out/COA-2611-052.pdf"))[0]
+            .contains("Test Report for Marlow & Finch Home Imports Ltd")
+    );
     t.write("ws/templates/title.hbs", "Report for {{client}}");
     let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out2"]);
     assert_eq!(r.code, 2, "a missing variable is an error in strict mode");
     assert!(r.stderr.contains("title.hbs"), "{}", r.stderr);
-    assert!(!t.exists("out2/COA-2611-052.csv"), "nothing is written when the certificate fails");
+    assert!(
+        !t.exists("out2/COA-2611-052.csv"),
+        "nothing is written when the certificate fails"
+    );
 }
