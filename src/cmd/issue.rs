@@ -48,7 +48,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         let ws = &shared.0;
         let batch = Batch::load(dir)?;
         templates.push(shared.clone());
-        let mut report = limen::report::build(&ws, &batch, 0, &run)?;
+        let mut report = limen::report::build(ws, &batch, 0, &run)?;
         if let Some(reason) = &a.accept_qc {
             if reason.trim().is_empty() {
                 return Err(Error::Usage {
