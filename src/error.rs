@@ -21,6 +21,8 @@ pub enum Error {
     Render(#[from] crate::render::RenderError),
     #[error(transparent)]
     Template(#[from] crate::templates::TemplateError),
+    #[error(transparent)]
+    Ledger(#[from] crate::ledger::LedgerError),
     #[error("{message}")]
     Usage { message: String, hint: String },
 }
@@ -33,6 +35,7 @@ impl Error {
             Error::Output(e) => e.hint(),
             Error::Render(e) => e.hint(),
             Error::Template(e) => e.hint(),
+            Error::Ledger(e) => e.hint(),
             Error::Usage { hint, .. } => hint.clone(),
         }
     }

@@ -49,3 +49,133 @@ pub fn write_all(dir: &Path, files: &[IssuedFile]) -> Result<Vec<PathBuf>, Outpu
         .map(|f| write_new(dir, &f.name, &f.bytes))
         .collect()
 }
+
+/// Points at which a test may stop the process mid-issue, to prove that
+/// an interrupted issue leaves a complete record or none.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Fault {
+    AfterStage,
+    AfterRecord,
+    AfterPublish,
+    AfterComplete,
+}
+
+impl Fault {
+    pub const ALL: [Fault; 4] = [
+        Fault::AfterStage,
+        Fault::AfterRecord,
+        Fault::AfterPublish,
+        Fault::AfterComplete,
+    ];
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Fault::AfterStage => "after-stage",
+            Fault::AfterRecord => "after-record",
+            Fault::AfterPublish => "after-publish",
+            Fault::AfterComplete => "after-complete",
+        }
+    }
+
+    pub fn parse(s: &str) -> Option<Fault> {
+        Fault::ALL.into_iter().find(|f| f.name() == s)
+    }
+}
+
+fn stop_at(fault: Option<Fault>, here: Fault) {
+    if fault == Some(here) {
+        // A crash, not an error: nothing after this point runs.
+        std::process::abort();
+    }
+}
+
+/// What a recorded issue needs besides the report.
+pub struct Record<'a> {
+    pub snapshot: crate::ledger::Snapshot,
+    pub local_offset: String,
+    pub reason: String,
+    pub changed: Vec<String>,
+    pub templates: &'a Templates,
+}
+
+/// Issues one report into `dir` and records it: the CSV is hashed for the
+/// certificate's verification code, both files are staged and synced, the
+/// record is written as pending, the files get their final names, and only
+/// then is the record marked issued.
+pub fn issue_recorded(
+    ledger: &mut crate::ledger::Ledger,
+    dir: &Path,
+    report: &mut Report,
+    rec: Record<'_>,
+    fault: Option<Fault>,
+) -> Result<(Vec<PathBuf>, Vec<String>), crate::Error> {
+    if report.header.revision == 0 {
+        if let Some(prev) = ledger.latest(&report.header.report)? {
+            return Err(crate::ledger::LedgerError::AlreadyIssued {
+                report: prev.report,
+                revision: prev.revision,
+                issued_at: prev.issued_at,
+            }
+            .into());
+        }
+    }
+    let csv = Csv.bytes(report);
+    report.header.verification_code = Some(crate::ledger::verification_code(&csv));
+    let (files, warnings) = render(report, rec.templates)?;
+    check_free(
+        dir,
+        &files.iter().map(|f| f.name.clone()).collect::<Vec<_>>(),
+    )?;
+    let mut staged = Vec::new();
+    for f in &files {
+        match crate::output::stage(dir, &f.name, &f.bytes) {
+            Ok(s) => staged.push(s),
+            Err(e) => {
+                staged.iter().for_each(crate::output::discard);
+                return Err(e.into());
+            }
+        }
+    }
+    stop_at(fault, Fault::AfterStage);
+    let new_files = files
+        .iter()
+        .zip(&staged)
+        .map(|(f, s)| crate::ledger::NewFile {
+            name: f.name.clone(),
+            tmp: s.tmp.clone(),
+            sha256: crate::ledger::sha256_hex(&f.bytes),
+            size: f.bytes.len() as u64,
+        })
+        .collect();
+    let id = match ledger.begin(&crate::ledger::NewRecord {
+        report,
+        local_offset: rec.local_offset,
+        reason: rec.reason,
+        changed: rec.changed,
+        out_dir: dir.to_path_buf(),
+        snapshot: rec.snapshot,
+        files: new_files,
+    }) {
+        Ok(id) => id,
+        Err(e) => {
+            staged.iter().for_each(crate::output::discard);
+            return Err(e.into());
+        }
+    };
+    stop_at(fault, Fault::AfterRecord);
+    for (k, s) in staged.iter().enumerate() {
+        if let Err(e) = crate::output::publish(s) {
+            for done in &staged[..k] {
+                let _ = std::fs::remove_file(&done.target);
+            }
+            staged.iter().for_each(crate::output::discard);
+            ledger.abandon(id)?;
+            return Err(e.into());
+        }
+    }
+    stop_at(fault, Fault::AfterPublish);
+    ledger.complete(id)?;
+    stop_at(fault, Fault::AfterComplete);
+    staged.iter().for_each(crate::output::discard);
+    Ok((staged.into_iter().map(|s| s.target).collect(), warnings))
+}

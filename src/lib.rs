@@ -9,6 +9,7 @@ pub mod error;
 pub mod fasthash;
 pub mod issue;
 pub mod layout;
+pub mod ledger;
 pub mod numeric;
 pub mod output;
 pub mod pdf;

@@ -50,27 +50,79 @@ pub fn check_free(dir: &Path, names: &[String]) -> Result<(), OutputError> {
     Ok(())
 }
 
-/// Writes `bytes` to a temporary file in `dir`, syncs it, then links it to
-/// `name`; linking fails rather than replace a file that appeared meanwhile.
-pub fn write_new(dir: &Path, name: &str, bytes: &[u8]) -> Result<PathBuf, OutputError> {
+/// A file written under a temporary name, synced, waiting to be published.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Staged {
+    pub tmp: PathBuf,
+    pub target: PathBuf,
+}
+
+const TMP_SUFFIX: &str = ".limen-tmp";
+
+/// Writes `bytes` to `.<name>.<pid>.limen-tmp` in `dir` and syncs it.
+pub fn stage(dir: &Path, name: &str, bytes: &[u8]) -> Result<Staged, OutputError> {
     fs::create_dir_all(dir).map_err(io(dir))?;
     let target = dir.join(name);
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = (|| {
-        let mut f = fs::File::create(&tmp).map_err(io(&tmp))?;
-        f.write_all(bytes).map_err(io(&tmp))?;
-        f.sync_all().map_err(io(&tmp))?;
-        drop(f);
-        match fs::hard_link(&tmp, &target) {
-            Ok(()) => Ok(()),
-            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Err(OutputError::Exists {
-                path: target.display().to_string(),
-            }),
-            Err(e) => Err(io(&target)(e)),
+    let tmp = dir.join(format!(".{name}.{}{TMP_SUFFIX}", std::process::id()));
+    let mut f = fs::File::create(&tmp).map_err(io(&tmp))?;
+    f.write_all(bytes).map_err(io(&tmp))?;
+    f.sync_all().map_err(io(&tmp))?;
+    Ok(Staged { tmp, target })
+}
+
+/// Gives a staged file its final name; fails rather than replace a file.
+pub fn publish(s: &Staged) -> Result<(), OutputError> {
+    match fs::hard_link(&s.tmp, &s.target) {
+        Ok(()) => {
+            if let Some(dir) = s.target.parent() {
+                // Make the new name durable before anything refers to it.
+                if let Ok(d) = fs::File::open(dir) {
+                    let _ = d.sync_all();
+                }
+            }
+            Ok(())
         }
-    })();
-    let _ = fs::remove_file(&tmp);
-    result.map(|()| target)
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Err(OutputError::Exists {
+            path: s.target.display().to_string(),
+        }),
+        Err(e) => Err(io(&s.target)(e)),
+    }
+}
+
+pub fn discard(s: &Staged) {
+    let _ = fs::remove_file(&s.tmp);
+}
+
+/// Removes temporary files that an interrupted run of limen left in `dir`
+/// (their process is gone), returning their names.
+pub fn sweep(dir: &Path) -> Vec<String> {
+    let mut removed = Vec::new();
+    let Ok(entries) = fs::read_dir(dir) else {
+        return removed;
+    };
+    for e in entries.flatten() {
+        let name = e.file_name().to_string_lossy().into_owned();
+        let Some(stem) = name.strip_suffix(TMP_SUFFIX) else {
+            continue;
+        };
+        let pid = stem.rsplit('.').next().and_then(|p| p.parse::<u32>().ok());
+        let alive = pid
+            .is_some_and(|p| p == std::process::id() || Path::new(&format!("/proc/{p}")).exists());
+        if !alive && fs::remove_file(e.path()).is_ok() {
+            removed.push(name);
+        }
+    }
+    removed.sort();
+    removed
+}
+
+/// Writes `bytes` under `name` in `dir` through a synced temporary file;
+/// never replaces an existing file.
+pub fn write_new(dir: &Path, name: &str, bytes: &[u8]) -> Result<PathBuf, OutputError> {
+    let s = stage(dir, name, bytes)?;
+    let result = publish(&s);
+    discard(&s);
+    result.map(|()| s.target)
 }
 
 #[cfg(test)]
@@ -89,6 +141,12 @@ mod tests {
         assert!(check_free(&dir, &["b.csv".into()]).is_ok());
         // No temporary file is left behind.
         assert_eq!(fs::read_dir(&dir).unwrap().count(), 1);
+        // A leftover from a process that is gone is swept; a live one is not.
+        fs::write(dir.join(".x.csv.4000000000.limen-tmp"), b"old").unwrap();
+        let live = stage(&dir, "y.csv", b"new").unwrap();
+        assert_eq!(sweep(&dir), vec![".x.csv.4000000000.limen-tmp".to_string()]);
+        assert!(live.tmp.exists());
+        discard(&live);
         fs::remove_dir_all(&dir).unwrap();
     }
 }

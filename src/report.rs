@@ -129,6 +129,9 @@ pub struct Report {
     /// The reason given when held QC was accepted for issue.
     pub qc_exception: Option<String>,
     pub problems: Vec<Problem>,
+    /// The register and spec rows the results used, in file order.
+    pub limits_used: Vec<crate::read::LimitRow>,
+    pub specs_used: Vec<crate::read::SpecRow>,
 }
 
 impl Report {
@@ -197,6 +200,9 @@ pub fn build(
     let mut rows = Vec::with_capacity(batch.results_bytes.len() / 110);
     let mut qc = Vec::new();
     let mut problems = Vec::new();
+    let mut limits_used: std::collections::BTreeMap<u64, crate::read::LimitRow> =
+        Default::default();
+    let mut specs_used: std::collections::BTreeMap<u64, crate::read::SpecRow> = Default::default();
     each_result(&batch.results_file, &batch.results_bytes, |row| {
         if row.kind != Kind::Sample {
             qc.push(row);
@@ -205,6 +211,14 @@ pub fn build(
         match resolve::resolve(&row, ws)? {
             Resolution::Blocked(p) => problems.push(p),
             Resolution::Resolved(r) => {
+                limits_used
+                    .entry(r.limits.line)
+                    .or_insert_with(|| r.limits.clone());
+                if let Some(spec) = &r.spec {
+                    specs_used
+                        .entry(spec.row.line)
+                        .or_insert_with(|| spec.row.clone());
+                }
                 let over_range = r.over_range;
                 if over_range {
                     problems.push(Problem {
@@ -252,6 +266,8 @@ pub fn build(
         qc_checks: evaluated.checks,
         qc_exception: None,
         problems,
+        limits_used: limits_used.into_values().collect(),
+        specs_used: specs_used.into_values().collect(),
     })
 }
 

@@ -11,6 +11,7 @@ fn workspace() -> Workspace {
     Workspace {
         root: ".".into(),
         lab_text: String::new(),
+        qc_text: None,
         lab: Lab::parse("lab.toml", "name='L'\naddress='A'\nsignatory='S'\n").unwrap(),
         register: Register::parse(
             "limits.csv",

@@ -1,6 +1,7 @@
 use super::run_info;
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
+use limen::ledger::Ledger;
 use limen::read::{Batch, Workspace};
 use limen::templates::Templates;
 use std::path::PathBuf;
@@ -24,31 +25,29 @@ pub struct Args {
 
 pub fn run(a: Args) -> Result<i32, Error> {
     let run = run_info()?;
+    let fault = super::fault()?;
     let progress = Progress::new(a.batches.len() as u64 * 2);
-    let mut reports = Vec::new();
-    let mut templates = Vec::new();
+    // (report, batch, index of its workspace)
+    let mut reports: Vec<(limen::Report, Batch, usize)> = Vec::new();
     // Batches of one workspace share its files, read once.
-    let mut workspaces: Vec<(PathBuf, std::rc::Rc<(Workspace, Templates)>)> = Vec::new();
+    let mut workspaces: Vec<(PathBuf, Workspace, Templates)> = Vec::new();
     for dir in &a.batches {
         progress.step(&format!("checking {}", dir.display()));
         let root = match &a.workspace {
             Some(w) => w.clone(),
             None => Workspace::find(dir)?,
         };
-        let shared = match workspaces.iter().find(|(r, _)| *r == root) {
-            Some((_, s)) => s.clone(),
+        let k = match workspaces.iter().position(|(r, _, _)| *r == root) {
+            Some(k) => k,
             None => {
                 let ws = Workspace::load(&root)?;
                 let t = Templates::load(Some(&ws.root))?;
-                let s = std::rc::Rc::new((ws, t));
-                workspaces.push((root, s.clone()));
-                s
+                workspaces.push((root, ws, t));
+                workspaces.len() - 1
             }
         };
-        let ws = &shared.0;
         let batch = Batch::load(dir)?;
-        templates.push(shared.clone());
-        let mut report = limen::report::build(ws, &batch, 0, &run)?;
+        let mut report = limen::report::build(&workspaces[k].1, &batch, 0, &run)?;
         if let Some(reason) = &a.accept_qc {
             if reason.trim().is_empty() {
                 return Err(Error::Usage {
@@ -58,9 +57,13 @@ pub fn run(a: Args) -> Result<i32, Error> {
             }
             report.accept_qc(reason);
         }
-        reports.push(report);
+        reports.push((report, batch, k));
     }
-    let blocked: Vec<_> = reports.iter().filter(|r| r.is_blocked()).collect();
+    let blocked: Vec<_> = reports
+        .iter()
+        .map(|r| &r.0)
+        .filter(|r| r.is_blocked())
+        .collect();
     if !blocked.is_empty() {
         for r in &blocked {
             eprintln!("error: {} is blocked; nothing was issued", r.header.report);
@@ -71,30 +74,61 @@ pub fn run(a: Args) -> Result<i32, Error> {
         eprintln!("hint: run `limen check` on the batch, resolve each problem, then issue again");
         return Ok(EXIT_BLOCKED);
     }
-    let mut files = Vec::new();
-    let mut counts = Vec::new();
-    for (r, t) in reports.iter().zip(&templates) {
-        progress.step(&format!("rendering {}", r.header.report));
-        let (f, warnings) = limen::issue::render(r, &t.1)?;
+    let mut ledgers = Vec::new();
+    for (_, ws, _) in &workspaces {
+        let (ledger, notes) = Ledger::open(&ws.root)?;
+        for n in notes {
+            eprintln!("note: {n}");
+        }
+        ledgers.push(ledger);
+    }
+    // Nothing is issued unless all can be: every number new, every file name free.
+    for (r, _, k) in &reports {
+        if let Some(prev) = ledgers[*k].latest(&r.header.report)? {
+            return Err(limen::ledger::LedgerError::AlreadyIssued {
+                report: prev.report,
+                revision: prev.revision,
+                issued_at: prev.issued_at,
+            }
+            .into());
+        }
+        let stem = &r.header.report;
+        limen::output::check_free(&a.out, &[format!("{stem}.csv"), format!("{stem}.pdf")])?;
+    }
+    for name in limen::output::sweep(&a.out) {
+        eprintln!(
+            "note: removed {name}, left in {} by an interrupted run",
+            a.out.display()
+        );
+    }
+    let mut lines = Vec::new();
+    for (mut report, batch, k) in reports {
+        progress.step(&format!("issuing {}", report.header.report));
+        let (_, ws, templates) = &workspaces[k];
+        let record = limen::issue::Record {
+            snapshot: limen::ledger::recompute::snapshot(ws, &batch, &report),
+            local_offset: ws.lab.utc_offset.to_string(),
+            reason: String::new(),
+            changed: Vec::new(),
+            templates,
+        };
+        let (paths, warnings) =
+            limen::issue::issue_recorded(&mut ledgers[k], &a.out, &mut report, record, fault)?;
         for w in warnings {
             eprintln!("warning: {w}");
         }
-        counts.push((r.header.report.clone(), r.rows.len(), f.len()));
-        files.extend(f);
+        let written: Vec<String> = paths.iter().map(|p| p.display().to_string()).collect();
+        lines.push(format!(
+            "issued {} revision 0 ({} results, verification code {}): {}",
+            report.header.report,
+            report.rows.len(),
+            report.header.verification_code.as_deref().unwrap_or(""),
+            written.join(", ")
+        ));
     }
     progress.finish();
-    let paths = limen::issue::write_all(&a.out, &files)?;
-    let mut paths = paths.iter();
-    for (report, results, n) in counts {
-        let written: Vec<String> = paths
-            .by_ref()
-            .take(n)
-            .map(|p| p.display().to_string())
-            .collect();
-        println!(
-            "issued {report} ({results} results): {}",
-            written.join(", ")
-        );
+    for l in lines {
+        println!("{l}");
     }
     Ok(EXIT_OK)
 }

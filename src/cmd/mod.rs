@@ -7,9 +7,13 @@ use std::path::Path;
 
 mod check;
 mod demo;
+mod history;
+mod impact;
 mod init;
 mod issue;
+mod reissue;
 mod study;
+mod verify;
 
 #[derive(Parser)]
 #[command(
@@ -31,6 +35,14 @@ enum Command {
     Check(check::Args),
     /// Issue the report files for one or more batches.
     Issue(issue::Args),
+    /// Re-issue a report as a new revision after a limit or detail changes.
+    Reissue(Box<reissue::Args>),
+    /// List the issued reports whose results change under today's register and specs.
+    Impact(impact::Args),
+    /// Say whether a PDF or CSV is an issued report, and whether it is current.
+    Verify(verify::Args),
+    /// List every revision of a report.
+    History(history::Args),
     /// Create a starter workspace that `limen check` accepts as is.
     Init(init::Args),
     /// Compute MDL, IDL and LOQ from a limit study and update the register.
@@ -45,6 +57,10 @@ pub fn run() -> i32 {
         Command::Check(a) => check::run(a),
         Command::Issue(a) => issue::run(a),
         Command::Init(a) => init::run(a),
+        Command::Reissue(a) => reissue::run(*a),
+        Command::Impact(a) => impact::run(a),
+        Command::Verify(a) => verify::run(a),
+        Command::History(a) => history::run(a),
         Command::Study(a) => study::run(*a),
         Command::Demo(a) => demo::run(a),
     };
@@ -74,6 +90,23 @@ pub fn load(batch_dir: &Path, explicit: Option<&Path>) -> Result<(Workspace, Bat
     Ok((ws, batch))
 }
 
+/// The workspace (--workspace, else upward from the current folder) and its
+/// ledger, after any recovery of an interrupted issue, which is reported.
+pub fn ledger_workspace(
+    explicit: Option<&Path>,
+) -> Result<(Workspace, limen::ledger::Ledger), Error> {
+    let root = match explicit {
+        Some(d) => d.to_path_buf(),
+        None => Workspace::find(Path::new("."))?,
+    };
+    let ws = Workspace::load(&root)?;
+    let (ledger, notes) = limen::ledger::Ledger::open(&ws.root)?;
+    for n in notes {
+        eprintln!("note: {n}");
+    }
+    Ok((ws, ledger))
+}
+
 /// Now, or SOURCE_DATE_EPOCH when set, so builds of a report reproduce.
 pub fn run_info() -> Result<RunInfo, Error> {
     let secs = match std::env::var("SOURCE_DATE_EPOCH") {
@@ -94,6 +127,20 @@ pub fn run_info() -> Result<RunInfo, Error> {
         issued_at,
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
     })
+}
+
+/// LIMEN_FAULT names a point at which `issue` stops the process, for the
+/// tests that prove an interrupted issue leaves a consistent ledger.
+pub fn fault() -> Result<Option<limen::issue::Fault>, Error> {
+    match std::env::var("LIMEN_FAULT") {
+        Err(_) => Ok(None),
+        Ok(v) => limen::issue::Fault::parse(&v)
+            .map(Some)
+            .ok_or_else(|| Error::Usage {
+                message: format!("LIMEN_FAULT=`{v}` is not a fault point"),
+                hint: "unset LIMEN_FAULT; it is for limen's own tests".into(),
+            }),
+    }
 }
 
 pub fn colour_stdout() -> bool {

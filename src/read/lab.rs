@@ -55,6 +55,7 @@ struct LabFile {
     compare: Option<Compare>,
     not_detected_style: Option<NotDetectedStyle>,
     page_size: Option<PageSize>,
+    utc_offset: Option<String>,
     #[serde(default)]
     methods: BTreeMap<String, String>,
     qc: Option<super::qc_config::QcFile>,
@@ -72,6 +73,8 @@ pub struct Lab {
     pub compare: Compare,
     pub not_detected_style: NotDetectedStyle,
     pub page_size: PageSize,
+    /// The lab's local offset from UTC, e.g. "+01:00", recorded with each issue time.
+    pub utc_offset: chrono::FixedOffset,
     /// Method id (as used in the register) -> description for certificates.
     pub methods: BTreeMap<String, String>,
     /// QC windows from lab.toml's [qc]; the workspace may take them from qc.toml instead.
@@ -111,7 +114,24 @@ impl Lab {
                 }
             })?,
         };
+        let utc_offset = match &f.utc_offset {
+            None => chrono::FixedOffset::east_opt(0),
+            Some(t) => parse_offset(t),
+        }
+        .ok_or_else(|| {
+            let line = text
+                .lines()
+                .position(|l| l.trim_start().starts_with("utc_offset"))
+                .map(|i| i as u64 + 1)
+                .unwrap_or(1);
+            ReadError::field(
+                super::Loc::new(file, line, "utc_offset"),
+                "not an offset from UTC",
+                "write it as \"+01:00\" or \"-05:00\"",
+            )
+        })?;
         Ok(Lab {
+            utc_offset,
             qc,
             qc_in_lab_file,
             name: f.name,
@@ -129,6 +149,21 @@ impl Lab {
             methods: f.methods,
         })
     }
+}
+
+fn parse_offset(t: &str) -> Option<chrono::FixedOffset> {
+    let t = t.trim();
+    let (sign, rest) = match t.as_bytes().first()? {
+        b'+' => (1, &t[1..]),
+        b'-' => (-1, &t[1..]),
+        _ => return None,
+    };
+    let (h, m) = rest.split_once(':')?;
+    let (h, m): (i32, i32) = (h.parse().ok()?, m.parse().ok()?);
+    if !(0..=14).contains(&h) || !(0..60).contains(&m) {
+        return None;
+    }
+    chrono::FixedOffset::east_opt(sign * (h * 3600 + m * 60))
 }
 
 #[cfg(test)]

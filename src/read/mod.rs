@@ -23,6 +23,8 @@ use std::path::{Path, PathBuf};
 pub struct Workspace {
     pub root: PathBuf,
     pub lab_text: String,
+    /// qc.toml, when the workspace has one.
+    pub qc_text: Option<String>,
     pub lab: Lab,
     pub register: Register,
     pub specs: Specs,
@@ -39,31 +41,26 @@ impl Workspace {
                 "save the file as UTF-8",
             )
         })?;
-        let mut lab = Lab::parse(&lab_file, &lab_text)?;
         let qc_path = root.join("qc.toml");
-        if qc_path.is_file() {
-            let qc_file = qc_path.display().to_string();
-            if lab.qc_in_lab_file {
-                return Err(ReadError::field(
-                    Loc::file(&qc_file),
-                    "QC windows are set both here and in lab.toml's [qc]",
-                    "keep the QC windows in one place: qc.toml or lab.toml's [qc], not both",
-                ));
-            }
-            let text = String::from_utf8(csvtable::read_file(&qc_path)?).map_err(|_| {
-                ReadError::field(
-                    Loc::file(&qc_file),
-                    "not valid UTF-8 text",
-                    "save the file as UTF-8",
-                )
-            })?;
-            let parsed: qc_config::QcFile = toml_util::parse(&qc_file, &text)?;
-            lab.qc = parsed.resolve().map_err(|message| ReadError::Toml {
-                file: qc_file.clone(),
-                line: 1,
-                message,
-            })?;
-        }
+        let qc_text = if qc_path.is_file() {
+            Some(
+                String::from_utf8(csvtable::read_file(&qc_path)?).map_err(|_| {
+                    ReadError::field(
+                        Loc::file(&qc_path.display().to_string()),
+                        "not valid UTF-8 text",
+                        "save the file as UTF-8",
+                    )
+                })?,
+            )
+        } else {
+            None
+        };
+        let qc_file = qc_path.display().to_string();
+        let lab = lab_from(
+            &lab_file,
+            &lab_text,
+            qc_text.as_deref().map(|t| (qc_file.as_str(), t)),
+        )?;
         let limits = root.join("limits.csv");
         let register = Register::parse(
             &limits.display().to_string(),
@@ -77,6 +74,7 @@ impl Workspace {
         Ok(Workspace {
             root: root.to_path_buf(),
             lab_text,
+            qc_text,
             lab,
             register,
             specs,
@@ -98,6 +96,31 @@ impl Workspace {
             start: start.display().to_string(),
         })
     }
+}
+
+/// lab.toml, with its QC windows from qc.toml when one is given.
+pub fn lab_from(
+    lab_file: &str,
+    lab_text: &str,
+    qc: Option<(&str, &str)>,
+) -> Result<Lab, ReadError> {
+    let mut lab = Lab::parse(lab_file, lab_text)?;
+    if let Some((qc_file, text)) = qc {
+        if lab.qc_in_lab_file {
+            return Err(ReadError::field(
+                Loc::file(qc_file),
+                "QC windows are set both here and in lab.toml's [qc]",
+                "keep the QC windows in one place: qc.toml or lab.toml's [qc], not both",
+            ));
+        }
+        let parsed: qc_config::QcFile = toml_util::parse(qc_file, text)?;
+        lab.qc = parsed.resolve().map_err(|message| ReadError::Toml {
+            file: qc_file.to_string(),
+            line: 1,
+            message,
+        })?;
+    }
+    Ok(lab)
 }
 
 fn relative_to_start(start: &Path, abs_start: &Path, found: &Path) -> PathBuf {

@@ -65,6 +65,7 @@ pub struct Context {
     replaces_issued_on: String,
     revision_reason: String,
     changed_results: String,
+    changed_list: Vec<String>,
 }
 
 /// "lowest (id) to highest (id)", per unit.
@@ -167,6 +168,7 @@ pub fn context(report: &Report) -> Context {
                 }
             })
             .unwrap_or_default(),
+        changed_list: replaces.map(|r| r.changed.clone()).unwrap_or_default(),
     }
 }
 

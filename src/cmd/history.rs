@@ -1,0 +1,36 @@
+use limen::Error;
+use limen::error::EXIT_OK;
+use std::path::PathBuf;
+
+#[derive(clap::Args)]
+pub struct Args {
+    report: String,
+    #[arg(long, value_name = "DIR")]
+    workspace: Option<PathBuf>,
+}
+
+pub fn run(a: Args) -> Result<i32, Error> {
+    let (_, ledger) = super::ledger_workspace(a.workspace.as_deref())?;
+    let revisions = ledger.history(&a.report)?;
+    if revisions.is_empty() {
+        return Err(limen::ledger::LedgerError::Unknown { report: a.report }.into());
+    }
+    println!("{}", a.report);
+    for r in &revisions {
+        println!(
+            "  revision {}  issued {} ({})  by {}  limen {}  {} result(s) changed{}",
+            r.revision,
+            r.issued_at,
+            r.local_offset,
+            r.signatory,
+            r.tool_version,
+            r.changed_count,
+            if r.reason.is_empty() {
+                String::new()
+            } else {
+                format!("  reason: {}", r.reason)
+            }
+        );
+    }
+    Ok(EXIT_OK)
+}

@@ -1,0 +1,615 @@
+//! The issued-report ledger: an embedded SQLite file in the workspace that
+//! remembers every issued report, its inputs and its files, so that a limit
+//! change can be traced to the reports it affects and each can be re-issued.
+
+pub mod recompute;
+
+use rusqlite::{Connection, OptionalExtension, TransactionBehavior, params};
+use sha2::{Digest, Sha256};
+use std::path::{Path, PathBuf};
+
+/// The schema this build writes; older ledgers are migrated forward.
+pub const SCHEMA_VERSION: i64 = 1;
+
+const MIGRATIONS: &[&str] = &[
+    // 0 -> 1
+    "CREATE TABLE reports (
+        id INTEGER PRIMARY KEY,
+        report TEXT NOT NULL,
+        revision INTEGER NOT NULL,
+        status TEXT NOT NULL CHECK (status IN ('pending', 'issued')),
+        issued_at TEXT NOT NULL,
+        local_offset TEXT NOT NULL,
+        signatory TEXT NOT NULL,
+        tool_version TEXT NOT NULL,
+        reason TEXT NOT NULL DEFAULT '',
+        changed TEXT NOT NULL DEFAULT '',
+        changed_count INTEGER NOT NULL DEFAULT 0,
+        out_dir TEXT NOT NULL,
+        batch_dir TEXT NOT NULL,
+        lab_toml TEXT NOT NULL,
+        qc_toml TEXT,
+        batch_toml TEXT NOT NULL,
+        results_name TEXT NOT NULL,
+        results BLOB NOT NULL,
+        limits_rows TEXT NOT NULL,
+        spec_rows TEXT NOT NULL,
+        UNIQUE (report, revision)
+    );
+    CREATE TABLE results (
+        report_id INTEGER NOT NULL REFERENCES reports(id) ON DELETE CASCADE,
+        lab_id TEXT NOT NULL,
+        analyte TEXT NOT NULL,
+        state TEXT NOT NULL,
+        verdict TEXT NOT NULL,
+        reported TEXT NOT NULL,
+        unit TEXT NOT NULL,
+        value TEXT NOT NULL,
+        mdl TEXT NOT NULL,
+        loq TEXT NOT NULL,
+        limits_row TEXT NOT NULL,
+        qualifiers TEXT NOT NULL
+    );
+    CREATE INDEX results_report ON results(report_id);
+    CREATE TABLE files (
+        report_id INTEGER NOT NULL REFERENCES reports(id) ON DELETE CASCADE,
+        name TEXT NOT NULL,
+        tmp TEXT NOT NULL,
+        sha256 TEXT NOT NULL,
+        size INTEGER NOT NULL
+    );
+    CREATE INDEX files_sha ON files(sha256);",
+];
+
+#[derive(Debug, thiserror::Error)]
+pub enum LedgerError {
+    #[error(
+        "{path}: written by a newer limen (ledger schema {found}, this build knows up to {known})"
+    )]
+    Newer {
+        path: String,
+        found: i64,
+        known: i64,
+    },
+    #[error("{path}: not a readable ledger ({message})")]
+    Corrupt { path: String, message: String },
+    #[error("{path}: {message}")]
+    Sql { path: String, message: String },
+    #[error("report {report} is already in the ledger (revision {revision} issued {issued_at})")]
+    AlreadyIssued {
+        report: String,
+        revision: u32,
+        issued_at: String,
+    },
+    #[error("report {report} is not in the ledger")]
+    Unknown { report: String },
+}
+
+impl LedgerError {
+    pub fn hint(&self) -> String {
+        match self {
+            LedgerError::Newer { .. } => "use the limen release that wrote this ledger, or a newer one; the file was not changed".into(),
+            LedgerError::Corrupt { .. } => "restore the ledger from a backup; limen never overwrites a ledger it cannot read".into(),
+            LedgerError::Sql { .. } => "check the ledger file's permissions and free disk space, then run again".into(),
+            LedgerError::AlreadyIssued { report, .. } => {
+                format!("an issued report never changes: use `limen reissue {report} --reason \"...\" --out DIR`")
+            }
+            LedgerError::Unknown { .. } => "check the report number; `limen history REPORT` lists what was issued".into(),
+        }
+    }
+}
+
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+/// The short code printed on a certificate: the first 16 hex digits of the
+/// SHA-256 of the report's CSV.
+pub fn verification_code(csv: &[u8]) -> String {
+    sha256_hex(csv)[..16].to_string()
+}
+
+/// What a report was computed from, kept so it can be recomputed later.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Snapshot {
+    pub batch_dir: String,
+    pub lab_toml: String,
+    pub qc_toml: Option<String>,
+    pub batch_toml: String,
+    pub results_name: String,
+    pub results: Vec<u8>,
+    pub limits_rows: String,
+    pub spec_rows: String,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct StoredResult {
+    pub lab_id: String,
+    pub analyte: String,
+    pub state: String,
+    pub verdict: String,
+    pub reported: String,
+    pub unit: String,
+    pub value: String,
+    pub mdl: String,
+    pub loq: String,
+    pub limits_row: String,
+    pub qualifiers: String,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Issued {
+    pub id: i64,
+    pub report: String,
+    pub revision: u32,
+    pub issued_at: String,
+    pub local_offset: String,
+    pub signatory: String,
+    pub tool_version: String,
+    pub reason: String,
+    pub changed: String,
+    pub changed_count: i64,
+}
+
+pub struct NewFile {
+    pub name: String,
+    pub tmp: PathBuf,
+    pub sha256: String,
+    pub size: u64,
+}
+
+pub struct NewRecord<'a> {
+    pub report: &'a crate::Report,
+    pub local_offset: String,
+    pub reason: String,
+    pub changed: Vec<String>,
+    pub out_dir: PathBuf,
+    pub snapshot: Snapshot,
+    pub files: Vec<NewFile>,
+}
+
+pub struct Ledger {
+    conn: Connection,
+    path: String,
+}
+
+const ISSUED_COLUMNS: &str = "id, report, revision, issued_at, local_offset, signatory, tool_version, reason, changed, changed_count";
+
+fn issued(row: &rusqlite::Row<'_>) -> rusqlite::Result<Issued> {
+    Ok(Issued {
+        id: row.get(0)?,
+        report: row.get(1)?,
+        revision: row.get::<_, i64>(2)? as u32,
+        issued_at: row.get(3)?,
+        local_offset: row.get(4)?,
+        signatory: row.get(5)?,
+        tool_version: row.get(6)?,
+        reason: row.get(7)?,
+        changed: row.get(8)?,
+        changed_count: row.get(9)?,
+    })
+}
+
+impl Ledger {
+    pub fn path_in(workspace: &Path) -> PathBuf {
+        workspace.join("ledger.sqlite")
+    }
+
+    fn sql(&self) -> impl Fn(rusqlite::Error) -> LedgerError + '_ {
+        |e| LedgerError::Sql {
+            path: self.path.clone(),
+            message: e.to_string(),
+        }
+    }
+
+    /// Opens (creating on first use) the workspace's ledger, migrates it
+    /// forward, and settles any issue an interrupted run left pending.
+    /// Returns what recovery did, in words.
+    pub fn open(workspace: &Path) -> Result<(Ledger, Vec<String>), LedgerError> {
+        let file = Self::path_in(workspace);
+        let path = file.display().to_string();
+        let corrupt = |e: rusqlite::Error| LedgerError::Corrupt {
+            path: path.clone(),
+            message: e.to_string(),
+        };
+        let conn = Connection::open(&file).map_err(corrupt)?;
+        conn.busy_timeout(std::time::Duration::from_secs(30))
+            .map_err(corrupt)?;
+        // The first read tells a corrupt file from a database.
+        let version: i64 = conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .map_err(corrupt)?;
+        if version > SCHEMA_VERSION {
+            return Err(LedgerError::Newer {
+                path,
+                found: version,
+                known: SCHEMA_VERSION,
+            });
+        }
+        conn.execute_batch("PRAGMA foreign_keys = ON; PRAGMA journal_mode = WAL;")
+            .map_err(corrupt)?;
+        let mut ledger = Ledger { conn, path };
+        ledger.migrate()?;
+        let notes = ledger.recover()?;
+        Ok((ledger, notes))
+    }
+
+    fn migrate(&mut self) -> Result<(), LedgerError> {
+        let path = self.path.clone();
+        let err = |e: rusqlite::Error| LedgerError::Sql {
+            path: path.clone(),
+            message: e.to_string(),
+        };
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(err)?;
+        let version: i64 = tx
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .map_err(err)?;
+        for (v, step) in MIGRATIONS.iter().enumerate().skip(version as usize) {
+            tx.execute_batch(step).map_err(err)?;
+            tx.execute_batch(&format!("PRAGMA user_version = {}", v + 1))
+                .map_err(err)?;
+        }
+        tx.commit().map_err(err)
+    }
+
+    /// A pending record means a run stopped between recording and finishing
+    /// an issue. If all its files reached their final names with the
+    /// recorded hashes, the issue is completed; otherwise its files are
+    /// removed and the record dropped, as though it never started.
+    fn recover(&mut self) -> Result<Vec<String>, LedgerError> {
+        let path = self.path.clone();
+        let err = |e: rusqlite::Error| LedgerError::Sql {
+            path: path.clone(),
+            message: e.to_string(),
+        };
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(err)?;
+        let pending: Vec<(i64, String, u32, String)> = {
+            let mut st = tx
+                .prepare(
+                    "SELECT id, report, revision, out_dir FROM reports WHERE status = 'pending'",
+                )
+                .map_err(err)?;
+            st.query_map([], |r| {
+                Ok((r.get(0)?, r.get(1)?, r.get::<_, i64>(2)? as u32, r.get(3)?))
+            })
+            .map_err(err)?
+            .collect::<Result<_, _>>()
+            .map_err(err)?
+        };
+        let mut notes = Vec::new();
+        for (id, report, revision, out_dir) in pending {
+            let files: Vec<(String, String, String)> = {
+                let mut st = tx
+                    .prepare("SELECT name, tmp, sha256 FROM files WHERE report_id = ?1")
+                    .map_err(err)?;
+                st.query_map([id], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+                    .map_err(err)?
+                    .collect::<Result<_, _>>()
+                    .map_err(err)?
+            };
+            let dir = Path::new(&out_dir);
+            let ours = |name: &str, sha: &str| {
+                std::fs::read(dir.join(name)).is_ok_and(|b| sha256_hex(&b) == sha)
+            };
+            let complete = files.iter().all(|(n, _, sha)| ours(n, sha));
+            if complete {
+                tx.execute("UPDATE reports SET status = 'issued' WHERE id = ?1", [id])
+                    .map_err(err)?;
+                notes.push(format!(
+                    "completed the interrupted issue of {report} revision {revision}"
+                ));
+            } else {
+                for (name, _, sha) in &files {
+                    if ours(name, sha) {
+                        let _ = std::fs::remove_file(dir.join(name));
+                    }
+                }
+                tx.execute("DELETE FROM reports WHERE id = ?1", [id])
+                    .map_err(err)?;
+                notes.push(format!(
+                    "rolled back the interrupted issue of {report} revision {revision}: nothing of it was issued"
+                ));
+            }
+            for (_, tmp, _) in &files {
+                let _ = std::fs::remove_file(tmp);
+            }
+        }
+        tx.commit().map_err(err)?;
+        Ok(notes)
+    }
+
+    pub fn latest(&self, report: &str) -> Result<Option<Issued>, LedgerError> {
+        self.conn
+            .query_row(
+                &format!(
+                    "SELECT {ISSUED_COLUMNS} FROM reports WHERE report = ?1 AND status = 'issued' ORDER BY revision DESC LIMIT 1"
+                ),
+                [report],
+                issued,
+            )
+            .optional()
+            .map_err(self.sql())
+    }
+
+    pub fn history(&self, report: &str) -> Result<Vec<Issued>, LedgerError> {
+        let mut st = self
+            .conn
+            .prepare(&format!(
+                "SELECT {ISSUED_COLUMNS} FROM reports WHERE report = ?1 AND status = 'issued' ORDER BY revision"
+            ))
+            .map_err(self.sql())?;
+        st.query_map([report], issued)
+            .map_err(self.sql())?
+            .collect::<Result<_, _>>()
+            .map_err(self.sql())
+    }
+
+    /// The latest issued revision of every report (issued on or after
+    /// `since`, a date, when given), by report number.
+    pub fn latest_all(&self, since: Option<chrono::NaiveDate>) -> Result<Vec<Issued>, LedgerError> {
+        let mut st = self
+            .conn
+            .prepare(&format!(
+                "SELECT {ISSUED_COLUMNS} FROM reports r WHERE status = 'issued'
+                 AND revision = (SELECT MAX(revision) FROM reports x WHERE x.report = r.report AND x.status = 'issued')
+                 AND (?1 IS NULL OR substr(issued_at, 1, 10) >= ?1)
+                 ORDER BY report"
+            ))
+            .map_err(self.sql())?;
+        let since = since.map(|d| d.to_string());
+        st.query_map([since], issued)
+            .map_err(self.sql())?
+            .collect::<Result<_, _>>()
+            .map_err(self.sql())
+    }
+
+    pub fn snapshot(&self, id: i64) -> Result<Snapshot, LedgerError> {
+        self.conn
+            .query_row(
+                "SELECT batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows FROM reports WHERE id = ?1",
+                [id],
+                |r| {
+                    Ok(Snapshot {
+                        batch_dir: r.get(0)?,
+                        lab_toml: r.get(1)?,
+                        qc_toml: r.get(2)?,
+                        batch_toml: r.get(3)?,
+                        results_name: r.get(4)?,
+                        results: r.get(5)?,
+                        limits_rows: r.get(6)?,
+                        spec_rows: r.get(7)?,
+                    })
+                },
+            )
+            .map_err(self.sql())
+    }
+
+    pub fn results(&self, id: i64) -> Result<Vec<StoredResult>, LedgerError> {
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers
+                 FROM results WHERE report_id = ?1 ORDER BY rowid",
+            )
+            .map_err(self.sql())?;
+        st.query_map([id], |r| {
+            Ok(StoredResult {
+                lab_id: r.get(0)?,
+                analyte: r.get(1)?,
+                state: r.get(2)?,
+                verdict: r.get(3)?,
+                reported: r.get(4)?,
+                unit: r.get(5)?,
+                value: r.get(6)?,
+                mdl: r.get(7)?,
+                loq: r.get(8)?,
+                limits_row: r.get(9)?,
+                qualifiers: r.get(10)?,
+            })
+        })
+        .map_err(self.sql())?
+        .collect::<Result<_, _>>()
+        .map_err(self.sql())
+    }
+
+    /// The issued record holding a file with this SHA-256, and the file's name.
+    pub fn find_file(&self, sha: &str) -> Result<Option<(Issued, String)>, LedgerError> {
+        let cols: Vec<String> = ISSUED_COLUMNS
+            .split(", ")
+            .map(|c| format!("r.{c}"))
+            .collect();
+        self.conn
+            .query_row(
+                &format!(
+                    "SELECT {}, f.name FROM files f JOIN reports r ON r.id = f.report_id
+                     WHERE f.sha256 = ?1 AND r.status = 'issued' ORDER BY r.revision DESC LIMIT 1",
+                    cols.join(", ")
+                ),
+                [sha],
+                |row| Ok((issued(row)?, row.get(10)?)),
+            )
+            .optional()
+            .map_err(self.sql())
+    }
+
+    /// Records an issue as pending, in one immediate transaction; refuses a
+    /// revision 0 whose report number exists, or a revision already taken.
+    pub fn begin(&mut self, rec: &NewRecord<'_>) -> Result<i64, LedgerError> {
+        let path = self.path.clone();
+        let err = |e: rusqlite::Error| LedgerError::Sql {
+            path: path.clone(),
+            message: e.to_string(),
+        };
+        let h = &rec.report.header;
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(err)?;
+        let existing: Option<(u32, String)> = tx
+            .query_row(
+                "SELECT revision, issued_at FROM reports WHERE report = ?1 AND (revision = ?2 OR ?2 = 0) ORDER BY revision DESC LIMIT 1",
+                params![h.report, h.revision],
+                |r| Ok((r.get::<_, i64>(0)? as u32, r.get(1)?)),
+            )
+            .optional()
+            .map_err(err)?;
+        if let Some((revision, issued_at)) = existing {
+            return Err(LedgerError::AlreadyIssued {
+                report: h.report.clone(),
+                revision,
+                issued_at,
+            });
+        }
+        let s = &rec.snapshot;
+        tx.execute(
+            "INSERT INTO reports (report, revision, status, issued_at, local_offset, signatory, tool_version, reason, changed,
+               changed_count, out_dir, batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows)
+             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
+            params![
+                h.report,
+                h.revision,
+                h.issued_at.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
+                rec.local_offset,
+                h.signatory,
+                h.tool_version,
+                rec.reason,
+                rec.changed.join("\n"),
+                rec.changed.len() as i64,
+                rec.out_dir.display().to_string(),
+                s.batch_dir,
+                s.lab_toml,
+                s.qc_toml,
+                s.batch_toml,
+                s.results_name,
+                s.results,
+                s.limits_rows,
+                s.spec_rows,
+            ],
+        )
+        .map_err(err)?;
+        let id = tx.last_insert_rowid();
+        {
+            let mut st = tx
+                .prepare(
+                    "INSERT INTO results (report_id, lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers)
+                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
+                )
+                .map_err(err)?;
+            for r in &rec.report.rows {
+                st.execute(params![
+                    id,
+                    r.lab_id,
+                    &*r.analyte,
+                    r.state.name(),
+                    r.verdict.map(|v| v.name()).unwrap_or(""),
+                    r.reported,
+                    r.unit.symbol(),
+                    crate::numeric::plain(r.value_unrounded),
+                    r.mdl.to_string(),
+                    r.loq.to_string(),
+                    &*r.limits_row,
+                    r.qualifiers.join(";"),
+                ])
+                .map_err(err)?;
+            }
+            let mut st = tx
+                .prepare("INSERT INTO files (report_id, name, tmp, sha256, size) VALUES (?1, ?2, ?3, ?4, ?5)")
+                .map_err(err)?;
+            for f in &rec.files {
+                st.execute(params![
+                    id,
+                    f.name,
+                    f.tmp.display().to_string(),
+                    f.sha256,
+                    f.size as i64
+                ])
+                .map_err(err)?;
+            }
+        }
+        tx.commit().map_err(err)?;
+        Ok(id)
+    }
+
+    /// Drops a pending issue whose files could not be put in place.
+    pub fn abandon(&mut self, id: i64) -> Result<(), LedgerError> {
+        self.conn
+            .execute(
+                "DELETE FROM reports WHERE id = ?1 AND status = 'pending'",
+                [id],
+            )
+            .map(|_| ())
+            .map_err(self.sql())
+    }
+
+    /// Marks a pending issue complete, once its files are in place.
+    pub fn complete(&mut self, id: i64) -> Result<(), LedgerError> {
+        self.conn
+            .execute("UPDATE reports SET status = 'issued' WHERE id = ?1", [id])
+            .map(|_| ())
+            .map_err(self.sql())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // SHA-256 test vector (FIPS 180-2, appendix B.1): "abc".
+    #[test]
+    fn sha256_of_abc() {
+        assert_eq!(
+            sha256_hex(b"abc"),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+        assert_eq!(verification_code(b"abc"), "ba7816bf8f01cfea");
+    }
+
+    fn temp_ws(name: &str) -> PathBuf {
+        let d = std::env::temp_dir().join(format!("limen-ledger-{name}-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&d);
+        std::fs::create_dir_all(&d).unwrap();
+        d
+    }
+
+    #[test]
+    fn creates_migrates_and_refuses_newer_or_corrupt_files() {
+        let ws = temp_ws("schema");
+        let (l, notes) = Ledger::open(&ws).unwrap();
+        assert!(notes.is_empty());
+        let v: i64 = l
+            .conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(v, SCHEMA_VERSION);
+        l.conn.execute_batch("PRAGMA user_version = 99").unwrap();
+        drop(l);
+        assert!(matches!(
+            Ledger::open(&ws),
+            Err(LedgerError::Newer { found: 99, .. })
+        ));
+        std::fs::remove_file(Ledger::path_in(&ws)).unwrap();
+        let _ = std::fs::remove_file(ws.join("ledger.sqlite-wal"));
+        let _ = std::fs::remove_file(ws.join("ledger.sqlite-shm"));
+        std::fs::write(Ledger::path_in(&ws), b"this is not a database, but a lab notebook page.......................................................................").unwrap();
+        let before = std::fs::read(Ledger::path_in(&ws)).unwrap();
+        assert!(matches!(
+            Ledger::open(&ws),
+            Err(LedgerError::Corrupt { .. })
+        ));
+        assert_eq!(
+            std::fs::read(Ledger::path_in(&ws)).unwrap(),
+            before,
+            "never overwritten"
+        );
+        std::fs::remove_dir_all(&ws).unwrap();
+    }
+}

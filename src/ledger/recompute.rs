@@ -1,0 +1,222 @@
+//! Recomputing an issued report from its stored inputs against a register
+//! and specs (today's, or corrected ones), and saying what changed.
+
+use super::{Snapshot, StoredResult};
+use crate::numeric::plain;
+use crate::read::{Batch, LimitRow, Manifest, Register, SpecRow, Specs, Workspace, lab_from};
+use crate::report::{EvalError, Report, RunInfo};
+use crate::{Error, read::ReadError};
+use std::path::{Path, PathBuf};
+
+fn limit_line(r: &LimitRow) -> String {
+    format!(
+        "{}:{}\t{}\t{}\t{}\t{}\t{}\t{}\t{}\t{}",
+        r.file,
+        r.line,
+        r.analyte,
+        r.matrix,
+        r.method,
+        r.unit,
+        r.mdl,
+        r.loq,
+        r.effective_from,
+        r.study_id
+    )
+}
+
+fn spec_line(r: &SpecRow) -> String {
+    format!(
+        "{}:{}\t{}\t{}\t{}\t{}\t{}\t{}\t{}",
+        r.file, r.line, r.spec, r.analyte, r.matrix, r.limit, r.unit, r.effective_from, r.citation
+    )
+}
+
+/// Everything needed to compute the report again: the lab's settings and
+/// the batch as they were, and the register and spec rows that were used.
+pub fn snapshot(ws: &Workspace, batch: &Batch, report: &Report) -> Snapshot {
+    Snapshot {
+        batch_dir: batch.dir.display().to_string(),
+        lab_toml: ws.lab_text.clone(),
+        qc_toml: ws.qc_text.clone(),
+        batch_toml: batch.manifest_text.clone(),
+        results_name: batch.results_file.clone(),
+        results: batch.results_bytes.clone(),
+        limits_rows: report
+            .limits_used
+            .iter()
+            .map(limit_line)
+            .collect::<Vec<_>>()
+            .join("\n"),
+        spec_rows: report
+            .specs_used
+            .iter()
+            .map(spec_line)
+            .collect::<Vec<_>>()
+            .join("\n"),
+    }
+}
+
+/// What to recompute against; `lab` and `manifest` replace the stored
+/// lab.toml or batch.toml (a corrected client name, say).
+pub struct Against<'a> {
+    pub root: &'a Path,
+    pub register: &'a Register,
+    pub specs: &'a Specs,
+    pub lab: Option<&'a str>,
+    pub manifest: Option<&'a str>,
+}
+
+pub fn recompute(
+    report_id: &str,
+    snap: &Snapshot,
+    against: &Against<'_>,
+    revision: u32,
+    run: &RunInfo,
+) -> Result<(Workspace, Batch, Report), Error> {
+    let lab_text = against.lab.unwrap_or(&snap.lab_toml).to_string();
+    let lab_file = format!("{report_id} (as issued): lab.toml");
+    let qc_file = format!("{report_id} (as issued): qc.toml");
+    let lab = lab_from(
+        &lab_file,
+        &lab_text,
+        snap.qc_toml.as_deref().map(|t| (qc_file.as_str(), t)),
+    )?;
+    let ws = Workspace {
+        root: against.root.to_path_buf(),
+        lab_text,
+        qc_text: snap.qc_toml.clone(),
+        lab,
+        register: against.register.clone(),
+        specs: against.specs.clone(),
+    };
+    let manifest_text = against.manifest.unwrap_or(&snap.batch_toml).to_string();
+    let manifest_file = format!("{report_id} (as issued): batch.toml");
+    let manifest = Manifest::parse(&manifest_file, &manifest_text)?;
+    if manifest.report != report_id {
+        return Err(Error::Read(ReadError::field(
+            crate::read::Loc::file(&manifest_file),
+            format!(
+                "the manifest names report {} but this is {report_id}",
+                manifest.report
+            ),
+            "a re-issue keeps its report number; correct the manifest's `report`",
+        )));
+    }
+    let batch = Batch {
+        dir: PathBuf::from(&snap.batch_dir),
+        manifest_file,
+        manifest_text,
+        manifest,
+        results_file: snap.results_name.clone(),
+        results_bytes: snap.results.clone(),
+    };
+    let report =
+        crate::report::build(&ws, &batch, revision, run).map_err(|e: EvalError| Error::Eval(e))?;
+    Ok((ws, batch, report))
+}
+
+/// One result whose state, verdict, reported value or sample limits differ.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Change {
+    pub lab_id: String,
+    pub analyte: String,
+    pub old: Option<StoredResult>,
+    pub new: Option<StoredResult>,
+}
+
+impl Change {
+    /// A change a client would see in a verdict, a state or a printed value.
+    pub fn material(&self) -> bool {
+        match (&self.old, &self.new) {
+            (Some(o), Some(n)) => {
+                o.state != n.state || o.verdict != n.verdict || o.reported != n.reported
+            }
+            _ => true,
+        }
+    }
+
+    /// In words, for a change table and a revised certificate.
+    pub fn describe(&self) -> String {
+        let side = |r: &Option<StoredResult>| match r {
+            Some(r) => format!(
+                "{} {} ({}{}; MDL {}, LOQ {})",
+                r.reported,
+                r.unit,
+                r.state,
+                if r.verdict.is_empty() {
+                    String::new()
+                } else {
+                    format!(", {}", r.verdict)
+                },
+                r.mdl,
+                r.loq
+            ),
+            None => "not reported".into(),
+        };
+        format!(
+            "{} {}: {} → {}",
+            self.lab_id,
+            self.analyte,
+            side(&self.old),
+            side(&self.new)
+        )
+    }
+}
+
+pub fn stored(report: &Report) -> Vec<StoredResult> {
+    report
+        .rows
+        .iter()
+        .map(|r| StoredResult {
+            lab_id: r.lab_id.clone(),
+            analyte: r.analyte.to_string(),
+            state: r.state.name().to_string(),
+            verdict: r.verdict.map(|v| v.name()).unwrap_or("").to_string(),
+            reported: r.reported.clone(),
+            unit: r.unit.symbol().to_string(),
+            value: plain(r.value_unrounded),
+            mdl: r.mdl.to_string(),
+            loq: r.loq.to_string(),
+            limits_row: r.limits_row.to_string(),
+            qualifiers: r.qualifiers.join(";"),
+        })
+        .collect()
+}
+
+/// Results that differ between what was issued and what is computed now.
+pub fn changes(old: &[StoredResult], new: &[StoredResult]) -> Vec<Change> {
+    let key = |r: &StoredResult| (r.lab_id.clone(), r.analyte.to_lowercase());
+    let mut out = Vec::new();
+    for o in old {
+        let n = new.iter().find(|n| key(n) == key(o));
+        let differs = match n {
+            None => true,
+            Some(n) => {
+                o.state != n.state
+                    || o.verdict != n.verdict
+                    || o.reported != n.reported
+                    || o.mdl != n.mdl
+                    || o.loq != n.loq
+                    || o.unit != n.unit
+                    || o.qualifiers != n.qualifiers
+            }
+        };
+        if differs {
+            out.push(Change {
+                lab_id: o.lab_id.clone(),
+                analyte: o.analyte.clone(),
+                old: Some(o.clone()),
+                new: n.cloned(),
+            });
+        }
+    }
+    for n in new.iter().filter(|n| !old.iter().any(|o| key(o) == key(n))) {
+        out.push(Change {
+            lab_id: n.lab_id.clone(),
+            analyte: n.analyte.clone(),
+            old: None,
+            new: Some(n.clone()),
+        });
+    }
+    out
+}
