@@ -154,11 +154,22 @@ fn issue_writes_the_report_once() {
     assert_eq!(row["revision"], "0");
     let again = t.limen(&["issue", "ws/b1", "--out", "out"]);
     assert_eq!(again.code, 2);
-    assert!(again.stderr.contains("report R-1 is already in the ledger"), "{}", again.stderr);
-    assert!(again.stderr.contains("hint: an issued report never changes: use `limen reissue R-1"));
+    assert!(
+        again.stderr.contains("report R-1 is already in the ledger"),
+        "{}",
+        again.stderr
+    );
+    assert!(
+        again
+            .stderr
+            .contains("hint: an issued report never changes: use `limen reissue R-1")
+    );
     assert_eq!(t.read("out/R-1.csv"), csv);
     // A file already under the name is never overwritten either.
-    let t2 = fixture("issue-exists", &rows("S1,C1,Chip,sample,Pb,paint,6010D,50,ug/L,1,0.100,50,2026-11-13,PAINT,\n"));
+    let t2 = fixture(
+        "issue-exists",
+        &rows("S1,C1,Chip,sample,Pb,paint,6010D,50,ug/L,1,0.100,50,2026-11-13,PAINT,\n"),
+    );
     t2.write("out/R-1.pdf", "someone else's file");
     let r = t2.limen(&["issue", "ws/b1", "--out", "out"]);
     assert_eq!(r.code, 2);

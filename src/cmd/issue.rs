@@ -82,6 +82,12 @@ pub fn run(a: Args) -> Result<i32, Error> {
         }
         ledgers.push(ledger);
     }
+    for name in limen::output::sweep(&a.out) {
+        eprintln!(
+            "note: removed {name}, left in {} by an interrupted run",
+            a.out.display()
+        );
+    }
     // Nothing is issued unless all can be: every number new, every file name free.
     for (r, _, k) in &reports {
         if let Some(prev) = ledgers[*k].latest(&r.header.report)? {
