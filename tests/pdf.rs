@@ -101,9 +101,13 @@ fn the_footnote_explains_only_the_states_present() {
 #[test]
 fn same_inputs_give_identical_bytes() {
     let t = TestDir::new("pdf-same");
-    t.demo_workspace("ws");
-    let a = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "a"]);
-    let b = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "b"]);
+    // Separate copies of the workspace: each has its own ledger, so the same
+    // report can be issued in each.
+    for w in ["ws1", "ws2", "ws3"] {
+        t.demo_workspace(w);
+    }
+    let a = t.limen(&["issue", "ws1/ceramics-2611-052", "--out", "a"]);
+    let b = t.limen(&["issue", "ws2/ceramics-2611-052", "--out", "b"]);
     assert_eq!((a.code, b.code), (0, 0), "{}{}", a.stderr, b.stderr);
     let (pa, pb) = (
         std::fs::read(t.path("a/COA-2611-052.pdf")).unwrap(),
@@ -118,8 +122,8 @@ fn same_inputs_give_identical_bytes() {
     // Two reports issued by one process are each reproducible too.
     let c = t.limen(&[
         "issue",
-        "ws/furniture-jewellery-2611-041",
-        "ws/ceramics-2611-052",
+        "ws3/furniture-jewellery-2611-041",
+        "ws3/ceramics-2611-052",
         "--out",
         "c",
     ]);
@@ -199,8 +203,9 @@ fn a_workspace_template_changes_the_wording() {
         pages(&t.path("out/COA-2611-052.pdf"))[0]
             .contains("Test Report for Marlow & Finch Home Imports Ltd")
     );
-    t.write("ws/templates/title.hbs", "Report for {{client}}");
-    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out2"]);
+    t.demo_workspace("ws2");
+    t.write("ws2/templates/title.hbs", "Report for {{client}}");
+    let r = t.limen(&["issue", "ws2/ceramics-2611-052", "--out", "out2"]);
     assert_eq!(r.code, 2, "a missing variable is an error in strict mode");
     assert!(r.stderr.contains("title.hbs"), "{}", r.stderr);
     assert!(
