@@ -50,6 +50,15 @@ fn demo_issues_the_two_clean_batches_and_holds_the_blocked_one() {
     assert!(t.exists("out/reports/COA-2611-041.csv"));
     assert!(t.exists("out/reports/COA-2611-052.csv"));
     assert!(!t.exists("out/reports/COA-2611-058.csv"));
+    // The register update re-issues the furniture report, and only it.
+    assert!(t.exists("out/reports/COA-2611-041-r1.pdf"));
+    assert!(!t.exists("out/reports/COA-2611-052-r1.pdf"));
+    assert!(r.stdout.contains("REPLACED by revision 1"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("current: this is the latest revision"),
+        "{}",
+        r.stdout
+    );
     golden("COA-2611-041.csv", &t.read("out/reports/COA-2611-041.csv"));
     golden("COA-2611-052.csv", &t.read("out/reports/COA-2611-052.csv"));
     // A second run replaces the demo's own folder rather than failing.

@@ -1,7 +1,11 @@
 use super::{colour_stdout, run_info};
 use limen::Error;
 use limen::error::EXIT_OK;
+use limen::issue::{Record, issue_recorded};
+use limen::ledger::Ledger;
+use limen::ledger::recompute::{Against, ReissueRequest, Reissued, impact, reissue, snapshot};
 use limen::read::{Batch, Workspace};
+use limen::templates::Templates;
 use std::path::{Path, PathBuf};
 
 /// Marks a folder as the demo's own, so a re-run may clear it.
@@ -43,41 +47,56 @@ fn prepare(out: &Path) -> Result<(), Error> {
     Ok(())
 }
 
+fn step(title: &str) {
+    println!("\n== {title} ==\n");
+}
+
 pub fn run(a: Args) -> Result<i32, Error> {
     prepare(&a.out)?;
     let ws_dir = a.out.join("workspace");
     let reports_dir = a.out.join("reports");
     limen::starter::lay_down(&ws_dir, limen::starter::DEMO)?;
     let ws = Workspace::load(&ws_dir)?;
-    let templates = limen::templates::Templates::load(Some(&ws_dir))?;
+    let templates = Templates::load(Some(&ws_dir))?;
+    let (mut ledger, _) = Ledger::open(&ws_dir)?;
     let run = run_info()?;
     let colour = colour_stdout();
-    println!("limen demo: {} (an invented lab and client)\n", ws.lab.name);
-    let mut issued = Vec::new();
+    println!("limen demo: {} (an invented lab and client)", ws.lab.name);
+
+    step("1. check and issue the client batches");
     for name in limen::starter::DEMO_BATCHES {
         let batch = Batch::load(&ws_dir.join(name))?;
-        let report = limen::report::build(&ws, &batch, 0, &run)?;
+        let mut report = limen::report::build(&ws, &batch, 0, &run)?;
         println!("$ limen check {}", ws_dir.join(name).display());
         print!("{}", limen::render::table::render(&report, colour));
         if report.is_blocked() {
             println!("-> not issued: the batch is blocked, as a lab would hold it.\n");
             continue;
         }
-        let (files, warnings) = limen::issue::render(&report, &templates)?;
+        let record = Record {
+            snapshot: snapshot(&ws, &batch, &report),
+            local_offset: ws.lab.utc_offset.to_string(),
+            reason: String::new(),
+            changed: Vec::new(),
+            templates: &templates,
+        };
+        let (paths, warnings) =
+            issue_recorded(&mut ledger, &reports_dir, &mut report, record, None)?;
         for w in warnings {
             eprintln!("warning: {w}");
         }
-        for path in limen::issue::write_all(&reports_dir, &files)? {
-            println!("-> issued {}", path.display());
-            issued.push(path);
+        for p in &paths {
+            println!("-> issued {}", p.display());
         }
         println!();
     }
+
     let (study_file, study_id, effective) = limen::starter::DEMO_STUDY;
+    step("2. a new limit study corrects the register");
     let study_path = ws_dir.join(study_file);
     let file = study_path.display().to_string();
     println!(
-        "$ limen study {file} --register {} --effective {effective} --study-id {study_id}",
+        "$ limen study {file} --register {} --effective {effective} --study-id {study_id}\n",
         ws_dir.join("limits.csv").display()
     );
     let groups = limen::study::groups(
@@ -111,7 +130,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     )?;
     for r in &rows {
         println!(
-            "-> register row added: {} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({}); batches analysed from that date use it.\n",
+            "-> register row added: {} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({})",
             r.analyte,
             r.matrix,
             r.method,
@@ -123,9 +142,88 @@ pub fn run(a: Args) -> Result<i32, Error> {
             r.study_id
         );
     }
-    println!("workspace: {}", ws_dir.display());
+
+    step("3. which issued reports does the change affect?");
+    let ws = Workspace::load(&ws_dir)?;
+    println!("$ limen impact --workspace {}\n", ws_dir.display());
+    let against = Against {
+        root: &ws.root,
+        register: &ws.register,
+        specs: &ws.specs,
+        lab: None,
+        manifest: None,
+    };
+    let (checked, affected, _) = impact(&ledger, &against, None, &run)?;
+    print!(
+        "{}",
+        super::impact::table(checked, &affected, &ws.register.file, &ws.specs.file)
+    );
+
+    step("4. re-issue each affected report");
+    let reason = format!(
+        "cadmium limits for paint corrected by study {study_id}, in force from {effective}"
+    );
+    let mut reissued = Vec::new();
+    for i in &affected {
+        println!(
+            "$ limen reissue {} --reason \"{reason}\" --out {}\n",
+            i.issued.report,
+            reports_dir.display()
+        );
+        let req = ReissueRequest {
+            report: &i.issued.report,
+            reason: &reason,
+            out: &reports_dir,
+            force: false,
+            local_offset: ws.lab.utc_offset.to_string(),
+            templates: &templates,
+            fault: None,
+        };
+        if let Reissued::Issued {
+            revision,
+            paths,
+            changes,
+            ..
+        } = reissue(&mut ledger, &against, &req, &run)?
+        {
+            println!(
+                "-> revision {revision}, {} result(s) changed:",
+                changes.len()
+            );
+            for c in &changes {
+                println!("   {}", c.describe());
+            }
+            for p in &paths {
+                println!("-> issued {}", p.display());
+            }
+            reissued.push((i.issued.report.clone(), paths));
+        }
+    }
+
+    step("5. verify both revisions");
+    for (report, paths) in &reissued {
+        let old = reports_dir.join(format!("{report}.pdf"));
+        for p in std::iter::once(&old).chain(
+            paths
+                .iter()
+                .filter(|p| p.extension().is_some_and(|e| e == "pdf")),
+        ) {
+            let bytes = limen::read::csvtable::read_file(p)?;
+            println!("$ limen verify {}", p.display());
+            println!(
+                "{}\n",
+                limen::ledger::verify_file(&ledger, &bytes)?.describe(&p.display().to_string())
+            );
+        }
+    }
+
+    println!("workspace: {} (ledger: ledger.sqlite)", ws_dir.display());
     println!("reports:   {}", reports_dir.display());
-    for p in &issued {
+    let mut files: Vec<_> = std::fs::read_dir(&reports_dir)
+        .map(|d| d.flatten().map(|e| e.path()).collect())
+        .unwrap_or_default();
+    files.sort();
+    for p in files {
         println!("  {}", p.display());
     }
     Ok(EXIT_OK)

@@ -1,7 +1,7 @@
 use super::run_info;
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
-use limen::ledger::recompute::{Against, changes, recompute, stored};
+use limen::ledger::recompute::{Against, Impact, impact};
 use std::path::PathBuf;
 
 #[derive(clap::ValueEnum, Clone, Copy)]
@@ -19,6 +19,36 @@ pub struct Args {
     since: Option<String>,
     #[arg(long, value_enum, default_value = "table")]
     format: Format,
+}
+
+/// The impact listing as a terminal table.
+pub fn table(checked: usize, affected: &[Impact], register: &str, specs: &str) -> String {
+    let mut out = format!("checked {checked} issued report(s) against {register} and {specs}\n");
+    if affected.is_empty() {
+        out.push_str("no issued report would change\n");
+    }
+    for i in affected {
+        out.push_str(&format!(
+            "{} revision {} (issued {}): {} result(s) would change: {} state, {} verdict, {} reported value{}\n",
+            i.issued.report,
+            i.issued.revision,
+            i.issued.issued_at.get(..10).unwrap_or(""),
+            i.changes.len(),
+            i.state_changes,
+            i.verdict_changes,
+            i.value_changes,
+            if i.now_blocked { "; and it would now be blocked" } else { "" }
+        ));
+        for c in &i.changes {
+            out.push_str(&format!("    {}\n", c.describe()));
+        }
+    }
+    if !affected.is_empty() {
+        out.push_str(
+            "next: `limen reissue REPORT --reason \"...\" --out DIR` for each report listed\n",
+        );
+    }
+    out
 }
 
 pub fn run(a: Args) -> Result<i32, Error> {
@@ -40,45 +70,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         lab: None,
         manifest: None,
     };
-    let mut affected = Vec::new();
-    let mut checked = 0usize;
-    let mut unreadable = Vec::new();
-    for issued in ledger.latest_all(since)? {
-        checked += 1;
-        let snap = ledger.snapshot(issued.id)?;
-        let report = match recompute(&issued.report, &snap, &against, issued.revision, &run) {
-            Ok((_, _, r)) => r,
-            Err(e) => {
-                unreadable.push(format!("{}: {e}", issued.report));
-                continue;
-            }
-        };
-        let diff = changes(&ledger.results(issued.id)?, &stored(&report));
-        let material: Vec<_> = diff.iter().filter(|c| c.material()).collect();
-        let blocked = report.is_blocked();
-        if !material.is_empty() || blocked {
-            let count = |f: &dyn Fn(&limen::ledger::recompute::Change) -> bool| {
-                material.iter().filter(|c| f(c)).count()
-            };
-            let states =
-                count(&|c| c.old.as_ref().map(|o| &o.state) != c.new.as_ref().map(|n| &n.state));
-            let verdicts = count(&|c| {
-                c.old.as_ref().map(|o| &o.verdict) != c.new.as_ref().map(|n| &n.verdict)
-            });
-            let values = count(&|c| {
-                c.old.as_ref().map(|o| &o.reported) != c.new.as_ref().map(|n| &n.reported)
-            });
-            affected.push((
-                issued,
-                material.len(),
-                states,
-                verdicts,
-                values,
-                blocked,
-                material.iter().map(|c| c.describe()).collect::<Vec<_>>(),
-            ));
-        }
-    }
+    let (checked, affected, failed) = impact(&ledger, &against, since, &run)?;
     match a.format {
         Format::Csv => {
             let mut w = csv::WriterBuilder::new()
@@ -94,55 +86,29 @@ pub fn run(a: Args) -> Result<i32, Error> {
                 "value_changes",
                 "now_blocked",
             ]);
-            for (i, n, s, v, r, b, _) in &affected {
+            for i in &affected {
                 let _ = w.write_record([
-                    i.report.clone(),
-                    i.revision.to_string(),
-                    i.issued_at.clone(),
-                    n.to_string(),
-                    s.to_string(),
-                    v.to_string(),
-                    r.to_string(),
-                    b.to_string(),
+                    i.issued.report.clone(),
+                    i.issued.revision.to_string(),
+                    i.issued.issued_at.clone(),
+                    i.changes.len().to_string(),
+                    i.state_changes.to_string(),
+                    i.verdict_changes.to_string(),
+                    i.value_changes.to_string(),
+                    i.now_blocked.to_string(),
                 ]);
             }
             let _ = w.flush();
         }
-        Format::Table => {
-            println!(
-                "checked {checked} issued report(s) against {} and {}",
-                ws.register.file, ws.specs.file
-            );
-            if affected.is_empty() {
-                println!("no issued report would change");
-            }
-            for (i, n, s, v, r, b, lines) in &affected {
-                println!(
-                    "{} revision {} (issued {}): {n} result(s) would change: {s} state, {v} verdict, {r} reported value{}",
-                    i.report,
-                    i.revision,
-                    &i.issued_at[..10.min(i.issued_at.len())],
-                    if *b {
-                        "; and it would now be blocked"
-                    } else {
-                        ""
-                    }
-                );
-                for l in lines {
-                    println!("    {l}");
-                }
-            }
-            if !affected.is_empty() {
-                println!(
-                    "next: `limen reissue REPORT --reason \"...\" --out DIR` for each report listed"
-                );
-            }
-        }
+        Format::Table => print!(
+            "{}",
+            table(checked, &affected, &ws.register.file, &ws.specs.file)
+        ),
     }
-    for u in &unreadable {
-        eprintln!("warning: could not recompute {u}");
+    for f in &failed {
+        eprintln!("warning: could not recompute {f}");
     }
-    Ok(if affected.is_empty() && unreadable.is_empty() {
+    Ok(if affected.is_empty() && failed.is_empty() {
         EXIT_OK
     } else {
         EXIT_BLOCKED

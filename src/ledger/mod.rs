@@ -559,6 +559,67 @@ impl Ledger {
     }
 }
 
+/// What the ledger says of a file.
+pub enum Verification {
+    NotIssued {
+        sha256: String,
+    },
+    Issued {
+        issued: Box<Issued>,
+        name: String,
+        /// The latest revision, when it is a later one.
+        replaced_by: Option<Box<Issued>>,
+    },
+}
+
+pub fn verify_file(ledger: &Ledger, bytes: &[u8]) -> Result<Verification, LedgerError> {
+    let sha256 = sha256_hex(bytes);
+    Ok(match ledger.find_file(&sha256)? {
+        None => Verification::NotIssued { sha256 },
+        Some((issued, name)) => {
+            let replaced_by = ledger
+                .latest(&issued.report)?
+                .filter(|l| l.revision > issued.revision)
+                .map(Box::new);
+            Verification::Issued {
+                issued: Box::new(issued),
+                name,
+                replaced_by,
+            }
+        }
+    })
+}
+
+impl Verification {
+    /// In words, as `limen verify` prints it.
+    pub fn describe(&self, file: &str) -> String {
+        match self {
+            Verification::NotIssued { sha256 } => {
+                format!(
+                    "{file}: not in this lab's ledger: altered, or not issued here\n  sha256 {sha256}"
+                )
+            }
+            Verification::Issued {
+                issued,
+                name,
+                replaced_by,
+            } => {
+                let status = match replaced_by {
+                    Some(l) => format!(
+                        "  REPLACED by revision {} issued {}: {}",
+                        l.revision, l.issued_at, l.reason
+                    ),
+                    None => "  current: this is the latest revision".to_string(),
+                };
+                format!(
+                    "{file}: issued as {} revision {} on {} by {} (file {name})\n{status}",
+                    issued.report, issued.revision, issued.issued_at, issued.signatory
+                )
+            }
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

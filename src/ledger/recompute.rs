@@ -220,3 +220,149 @@ pub fn changes(old: &[StoredResult], new: &[StoredResult]) -> Vec<Change> {
     }
     out
 }
+
+/// One issued report that would change under the register and specs given.
+#[derive(Debug, Clone)]
+pub struct Impact {
+    pub issued: super::Issued,
+    pub changes: Vec<Change>,
+    pub state_changes: usize,
+    pub verdict_changes: usize,
+    pub value_changes: usize,
+    /// The recomputed report has a blocking problem (a limit no longer in force, say).
+    pub now_blocked: bool,
+}
+
+/// Recomputes the latest revision of every issued report (issued since
+/// `since`, if given) and returns those whose states, verdicts or reported
+/// values would change, and those that could not be recomputed.
+pub fn impact(
+    ledger: &super::Ledger,
+    against: &Against<'_>,
+    since: Option<chrono::NaiveDate>,
+    run: &RunInfo,
+) -> Result<(usize, Vec<Impact>, Vec<String>), Error> {
+    let mut affected = Vec::new();
+    let mut failed = Vec::new();
+    let all = ledger.latest_all(since)?;
+    for issued in &all {
+        let snap = ledger.snapshot(issued.id)?;
+        let report = match recompute(&issued.report, &snap, against, issued.revision, run) {
+            Ok((_, _, r)) => r,
+            Err(e) => {
+                failed.push(format!("{}: {e}", issued.report));
+                continue;
+            }
+        };
+        let material: Vec<Change> = changes(&ledger.results(issued.id)?, &stored(&report))
+            .into_iter()
+            .filter(Change::material)
+            .collect();
+        if material.is_empty() && !report.is_blocked() {
+            continue;
+        }
+        let count = |f: fn(&StoredResult) -> &String| {
+            material
+                .iter()
+                .filter(|c| c.old.as_ref().map(f) != c.new.as_ref().map(f))
+                .count()
+        };
+        affected.push(Impact {
+            issued: issued.clone(),
+            state_changes: count(|r| &r.state),
+            verdict_changes: count(|r| &r.verdict),
+            value_changes: count(|r| &r.reported),
+            now_blocked: report.is_blocked(),
+            changes: material,
+        });
+    }
+    Ok((all.len(), affected, failed))
+}
+
+/// How a re-issue ended.
+pub enum Reissued {
+    Issued {
+        revision: u32,
+        replaces: u32,
+        changes: Vec<Change>,
+        paths: Vec<PathBuf>,
+        warnings: Vec<String>,
+    },
+    /// Nothing differs from the revision in force (and no --force).
+    Unchanged {
+        revision: u32,
+    },
+    Blocked {
+        report: Box<Report>,
+    },
+}
+
+pub struct ReissueRequest<'a> {
+    pub report: &'a str,
+    pub reason: &'a str,
+    pub out: &'a Path,
+    pub force: bool,
+    pub local_offset: String,
+    pub templates: &'a crate::templates::Templates,
+    pub fault: Option<crate::issue::Fault>,
+}
+
+/// Recomputes a report's latest revision and, if anything changed (or
+/// `force`), issues the next revision, which names the one it replaces,
+/// the reason, and every changed result.
+pub fn reissue(
+    ledger: &mut super::Ledger,
+    against: &Against<'_>,
+    req: &ReissueRequest<'_>,
+    run: &RunInfo,
+) -> Result<Reissued, Error> {
+    let prev = ledger
+        .latest(req.report)?
+        .ok_or_else(|| super::LedgerError::Unknown {
+            report: req.report.to_string(),
+        })?;
+    let snap = ledger.snapshot(prev.id)?;
+    let revision = prev.revision + 1;
+    let (ws, batch, mut report) = recompute(req.report, &snap, against, revision, run)?;
+    if report.is_blocked() {
+        return Ok(Reissued::Blocked {
+            report: Box::new(report),
+        });
+    }
+    let diff = changes(&ledger.results(prev.id)?, &stored(&report));
+    let details_changed = against.manifest.is_some_and(|m| m != snap.batch_toml)
+        || against.lab.is_some_and(|l| l != snap.lab_toml);
+    if diff.is_empty() && !details_changed && !req.force {
+        return Ok(Reissued::Unchanged {
+            revision: prev.revision,
+        });
+    }
+    let changed: Vec<String> = diff.iter().map(Change::describe).collect();
+    report.header.replaces = Some(crate::report::Replaces {
+        report: prev.report.clone(),
+        revision: prev.revision,
+        issued_on: chrono::NaiveDate::parse_from_str(
+            prev.issued_at.get(..10).unwrap_or(""),
+            "%Y-%m-%d",
+        )
+        .unwrap_or_default(),
+        reason: req.reason.trim().to_string(),
+        changed: changed.clone(),
+    });
+    let record = crate::issue::Record {
+        snapshot: snapshot(&ws, &batch, &report),
+        local_offset: req.local_offset.clone(),
+        reason: req.reason.trim().to_string(),
+        changed,
+        templates: req.templates,
+    };
+    let (paths, warnings) =
+        crate::issue::issue_recorded(ledger, req.out, &mut report, record, req.fault)?;
+    Ok(Reissued::Issued {
+        revision,
+        replaces: prev.revision,
+        changes: diff,
+        paths,
+        warnings,
+    })
+}
