@@ -206,3 +206,79 @@ fn pdfinfo_pages(path: &std::path::Path) -> Option<usize> {
         .lines()
         .find_map(|l| l.strip_prefix("Pages:").map(|v| v.trim().parse().ok()))?
 }
+
+/// A ledger of 20,000 issued reports (10 results each), written through the
+/// library as `limen issue` would record them, then `limen impact` over all.
+#[test]
+#[ignore]
+fn impact_over_twenty_thousand_reports() {
+    let t = TestDir::new("bench-impact");
+    t.write("ws/lab.toml", "name='Bench Lab'\naddress='1 Bench Road'\nsignatory='B. Analyst'\n[qc]\nrequired=[]\n");
+    t.write(
+        "ws/limits.csv",
+        "analyte,matrix,method,unit,mdl,loq,effective_from,study_id\nPb,paint,6010D,ug/L,8,25,2025-01-01,S1\nCd,paint,6010D,ug/L,2,6,2025-01-01,S2\n",
+    );
+    t.write(
+        "ws/specs.csv",
+        "spec,analyte,matrix,limit,unit,citation,effective_from\nP,Pb,paint,90,mg/kg,c,2009-01-01\nC,Cd,paint,75,mg/kg,c,2009-01-01\n",
+    );
+    let ws = limen::read::Workspace::load(&t.path("ws")).unwrap();
+    let (mut ledger, _) = limen::ledger::Ledger::open(&ws.root).unwrap();
+    let run = limen::RunInfo {
+        issued_at: chrono::DateTime::from_timestamp(1_795_000_000, 0).unwrap(),
+        tool_version: "bench".into(),
+    };
+    let n = 20_000;
+    let start = Instant::now();
+    for i in 0..n {
+        let manifest = format!(
+            "batch='B{i}'\nreport='R-{i:05}'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nreceived_on=2026-11-10\nresults='r.csv'\n"
+        );
+        let mut csv = String::from("lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n");
+        for k in 0..5 {
+            let _ = writeln!(csv, "S{i}-{k},sample,Pb,paint,6010D,{}.{k},ug/L,1,0.100,50,2026-11-13,P", (i + k * 7) % 200);
+            let _ = writeln!(csv, "S{i}-{k},sample,Cd,paint,6010D,{}.{k},ug/L,1,0.100,50,2026-11-13,C", (i + k * 3) % 40);
+        }
+        let batch = limen::read::Batch {
+            dir: t.path(&format!("ws/b{i}")),
+            manifest_file: "batch.toml".into(),
+            manifest_text: manifest.clone(),
+            manifest: limen::read::Manifest::parse("batch.toml", &manifest).unwrap(),
+            results_file: "r.csv".into(),
+            results_bytes: csv.into_bytes(),
+        };
+        let report = limen::report::build(&ws, &batch, 0, &run).unwrap();
+        let id = ledger
+            .begin(&limen::ledger::NewRecord {
+                report: &report,
+                local_offset: "+00:00".into(),
+                reason: String::new(),
+                changed: Vec::new(),
+                out_dir: t.path("out"),
+                snapshot: limen::ledger::recompute::snapshot(&ws, &batch, &report),
+                files: Vec::new(),
+            })
+            .unwrap();
+        ledger.complete(id).unwrap();
+    }
+    println!("wrote {n} ledger records in {:.1} s", start.elapsed().as_secs_f64());
+    drop(ledger);
+    // A corrected cadmium MDL that changes some results.
+    let mut limits = t.read("ws/limits.csv");
+    limits.push_str("Cd,paint,6010D,ug/L,3,9,2026-11-01,S3\n");
+    t.write("ws/limits.csv", limits);
+    let start = Instant::now();
+    let out = std::process::Command::new("/usr/bin/time")
+        .args(["-v", env!("CARGO_BIN_EXE_limen"), "impact", "--workspace", "ws", "--format", "csv"])
+        .current_dir(&t.root)
+        .output()
+        .unwrap();
+    let secs = start.elapsed().as_secs_f64();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(3), "{stderr}");
+    let affected = stdout.lines().count() - 1;
+    let rss = stderr.lines().find(|l| l.contains("Maximum resident set size")).unwrap_or("").trim();
+    println!("impact over {n} reports: {affected} affected, {secs:.2} s; {rss}");
+    assert!(affected > 0 && affected < n);
+}
