@@ -213,7 +213,10 @@ fn pdfinfo_pages(path: &std::path::Path) -> Option<usize> {
 #[ignore]
 fn impact_over_twenty_thousand_reports() {
     let t = TestDir::new("bench-impact");
-    t.write("ws/lab.toml", "name='Bench Lab'\naddress='1 Bench Road'\nsignatory='B. Analyst'\n[qc]\nrequired=[]\n");
+    t.write(
+        "ws/lab.toml",
+        "name='Bench Lab'\naddress='1 Bench Road'\nsignatory='B. Analyst'\n[qc]\nrequired=[]\n",
+    );
     t.write(
         "ws/limits.csv",
         "analyte,matrix,method,unit,mdl,loq,effective_from,study_id\nPb,paint,6010D,ug/L,8,25,2025-01-01,S1\nCd,paint,6010D,ug/L,2,6,2025-01-01,S2\n",
@@ -234,10 +237,20 @@ fn impact_over_twenty_thousand_reports() {
         let manifest = format!(
             "batch='B{i}'\nreport='R-{i:05}'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nreceived_on=2026-11-10\nresults='r.csv'\n"
         );
-        let mut csv = String::from("lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n");
+        let mut csv = String::from(
+            "lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\n",
+        );
         for k in 0..5 {
-            let _ = writeln!(csv, "S{i}-{k},sample,Pb,paint,6010D,{}.{k},ug/L,1,0.100,50,2026-11-13,P", (i + k * 7) % 200);
-            let _ = writeln!(csv, "S{i}-{k},sample,Cd,paint,6010D,{}.{k},ug/L,1,0.100,50,2026-11-13,C", (i + k * 3) % 40);
+            let _ = writeln!(
+                csv,
+                "S{i}-{k},sample,Pb,paint,6010D,{}.{k},ug/L,1,0.100,50,2026-11-13,P",
+                (i + k * 7) % 200
+            );
+            let _ = writeln!(
+                csv,
+                "S{i}-{k},sample,Cd,paint,6010D,{}.{k},ug/L,1,0.100,50,2026-11-13,C",
+                (i + k * 3) % 40
+            );
         }
         let batch = limen::read::Batch {
             dir: t.path(&format!("ws/b{i}")),
@@ -261,7 +274,10 @@ fn impact_over_twenty_thousand_reports() {
             .unwrap();
         ledger.complete(id).unwrap();
     }
-    println!("wrote {n} ledger records in {:.1} s", start.elapsed().as_secs_f64());
+    println!(
+        "wrote {n} ledger records in {:.1} s",
+        start.elapsed().as_secs_f64()
+    );
     drop(ledger);
     // A corrected cadmium MDL that changes some results.
     let mut limits = t.read("ws/limits.csv");
@@ -269,7 +285,15 @@ fn impact_over_twenty_thousand_reports() {
     t.write("ws/limits.csv", limits);
     let start = Instant::now();
     let out = std::process::Command::new("/usr/bin/time")
-        .args(["-v", env!("CARGO_BIN_EXE_limen"), "impact", "--workspace", "ws", "--format", "csv"])
+        .args([
+            "-v",
+            env!("CARGO_BIN_EXE_limen"),
+            "impact",
+            "--workspace",
+            "ws",
+            "--format",
+            "csv",
+        ])
         .current_dir(&t.root)
         .output()
         .unwrap();
@@ -278,7 +302,11 @@ fn impact_over_twenty_thousand_reports() {
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(3), "{stderr}");
     let affected = stdout.lines().count() - 1;
-    let rss = stderr.lines().find(|l| l.contains("Maximum resident set size")).unwrap_or("").trim();
+    let rss = stderr
+        .lines()
+        .find(|l| l.contains("Maximum resident set size"))
+        .unwrap_or("")
+        .trim();
     println!("impact over {n} reports: {affected} affected, {secs:.2} s; {rss}");
     assert!(affected > 0 && affected < n);
 }

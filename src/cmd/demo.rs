@@ -119,15 +119,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         study_id,
         ws.lab.significant_figures,
     );
-    limen::study::register_update::append(&ws_dir.join("limits.csv"), &rows).map_err(
-        |e| match e {
-            limen::study::register_update::UpdateError::Read(r) => Error::Read(r),
-            other => Error::Usage {
-                message: other.to_string(),
-                hint: other.hint(),
-            },
-        },
-    )?;
+    limen::study::register_update::append(&ws_dir.join("limits.csv"), &rows)?;
     for r in &rows {
         println!(
             "-> register row added: {} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({})",

@@ -270,10 +270,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         println!("wrote {}", csv_path.display());
     }
     if let Some((reg_path, rows)) = update {
-        register_update::append(&reg_path, &rows).map_err(|e| match e {
-            register_update::UpdateError::Read(r) => Error::Read(r),
-            other => usage(other.to_string(), other.hint()),
-        })?;
+        register_update::append(&reg_path, &rows)?;
         println!("appended to {}:", reg_path.display());
         for r in &rows {
             println!(

@@ -172,10 +172,11 @@ fn apply(
     Ok(c)
 }
 
-impl QcFile {
-    pub fn resolve(&self) -> Result<QcConfig, String> {
-        let base = apply(
-            &Criteria::default(),
+impl CriteriaFile {
+    /// These overrides laid over `base`.
+    fn apply(&self, base: &Criteria) -> Result<Criteria, String> {
+        apply(
+            base,
             [
                 ("lcs_recovery_pct", &self.lcs_recovery_pct),
                 ("spike_recovery_pct", &self.spike_recovery_pct),
@@ -195,32 +196,33 @@ impl QcFile {
                     self.blank_affects_below_factor.as_ref(),
                 ),
             ],
-        )?;
+        )
+    }
+}
+
+impl QcFile {
+    /// The lab-wide overrides, as the per-method tables hold theirs.
+    fn lab_wide(&self) -> CriteriaFile {
+        CriteriaFile {
+            lcs_recovery_pct: self.lcs_recovery_pct.clone(),
+            spike_recovery_pct: self.spike_recovery_pct.clone(),
+            spike_parent_max_factor: self.spike_parent_max_factor.clone(),
+            rpd_max_pct: self.rpd_max_pct.clone(),
+            rpd_min_loq_factor: self.rpd_min_loq_factor.clone(),
+            ccv_recovery_pct: self.ccv_recovery_pct.clone(),
+            blank_limit_pct: self.blank_limit_pct.clone(),
+            blank_sample_pct: self.blank_sample_pct.clone(),
+            blank_affects_below_factor: self.blank_affects_below_factor.clone(),
+        }
+    }
+
+    pub fn resolve(&self) -> Result<QcConfig, String> {
+        let base = self.lab_wide().apply(&Criteria::default())?;
         let mut methods = BTreeMap::new();
         for (name, m) in &self.methods {
-            let c = apply(
-                &base,
-                [
-                    ("lcs_recovery_pct", &m.lcs_recovery_pct),
-                    ("spike_recovery_pct", &m.spike_recovery_pct),
-                    ("ccv_recovery_pct", &m.ccv_recovery_pct),
-                ],
-                [
-                    (
-                        "spike_parent_max_factor",
-                        m.spike_parent_max_factor.as_ref(),
-                    ),
-                    ("rpd_max_pct", m.rpd_max_pct.as_ref()),
-                    ("rpd_min_loq_factor", m.rpd_min_loq_factor.as_ref()),
-                    ("blank_limit_pct", m.blank_limit_pct.as_ref()),
-                    ("blank_sample_pct", m.blank_sample_pct.as_ref()),
-                    (
-                        "blank_affects_below_factor",
-                        m.blank_affects_below_factor.as_ref(),
-                    ),
-                ],
-            )
-            .map_err(|e| format!("[qc.methods.\"{name}\"] {e}"))?;
+            let c = m
+                .apply(&base)
+                .map_err(|e| format!("[qc.methods.\"{name}\"] {e}"))?;
             methods.insert(name.clone(), c);
         }
         let required = match &self.required {
