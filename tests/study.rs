@@ -279,3 +279,24 @@ fn calibration_and_baseline_modes() {
     assert!(r.stdout.contains("ESTIMATE"));
     assert!(r.stdout.contains("peak at x = 20"), "{}", r.stdout);
 }
+
+#[test]
+fn study_record_pdf_holds_the_results_and_every_replicate() {
+    let t = fixture("study-pdf");
+    let r = t.limen(&["study", "ws/study.csv", "--pdf", "ws/record.pdf"]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    let out = std::process::Command::new("pdftotext")
+        .args(["-layout", "-enc", "UTF-8"])
+        .arg(t.path("ws/record.pdf"))
+        .arg("-")
+        .output()
+        .expect("pdftotext");
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("Detection-limit study record"));
+    assert!(text.contains("t(n−1, 0.99) = 3.143"), "{text}");
+    assert!(text.contains("MDL_S governs"));
+    for i in 0..7 {
+        assert!(text.contains(&format!("SP{i}")), "SP{i} missing");
+        assert!(text.contains(&format!("BL{i}")), "BL{i} missing");
+    }
+}

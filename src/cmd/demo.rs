@@ -111,6 +111,16 @@ pub fn run(a: Args) -> Result<i32, Error> {
     for r in &results {
         println!("{}", limen::render::study::mdl_text(r));
     }
+    let record = limen::render::study_pdf::record(
+        &results,
+        &groups,
+        study_file,
+        &ws.lab.name,
+        run.issued_at.timestamp(),
+        &run.tool_version,
+    )?;
+    let record_path = limen::output::write_new(&reports_dir, "study-record-cd-paint.pdf", &record)?;
+    println!("-> study record {}", record_path.display());
     let effective_date = limen::read::csvtable::parse_date(effective).unwrap_or_default();
     let rows = limen::study::register_update::rows_for(
         &results,

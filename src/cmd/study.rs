@@ -34,6 +34,9 @@ pub struct Args {
     /// Write the full-precision results to this CSV file.
     #[arg(long, value_name = "FILE")]
     csv: Option<PathBuf>,
+    /// Write a study record (results, dot plot, data) to this PDF file.
+    #[arg(long, value_name = "FILE")]
+    pdf: Option<PathBuf>,
     /// Append the new limits to this register (with --effective and --study-id);
     /// with --verify, the register to verify against.
     #[arg(long, value_name = "FILE")]
@@ -257,6 +260,30 @@ pub fn run(a: Args) -> Result<i32, Error> {
             Some((reg_path.clone(), rows))
         }
     };
+    if let Some(pdf_path) = &a.pdf {
+        let lab = workspace(a.workspace.as_deref(), path)?
+            .map(|w| w.lab.name)
+            .unwrap_or_default();
+        let run = super::run_info()?;
+        let bytes = limen::render::study_pdf::record(
+            &results,
+            &groups,
+            &file,
+            &lab,
+            run.issued_at.timestamp(),
+            &run.tool_version,
+        )?;
+        let dir = pdf_path
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .unwrap_or(Path::new("."));
+        let name = pdf_path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        limen::output::write_new(dir, &name, &bytes)?;
+        println!("wrote {}", pdf_path.display());
+    }
     if let Some(csv_path) = &a.csv {
         let dir = csv_path
             .parent()

@@ -4,6 +4,7 @@
 pub mod certificate;
 pub mod csv;
 pub mod study;
+pub mod study_pdf;
 pub mod table;
 
 use crate::report::Report;
