@@ -245,6 +245,27 @@ fn a_failing_ccv_holds_the_results_it_brackets() {
     ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let csv = t.read("out/R-1.csv");
+    // The certificate states the exception, its reason and the legend.
+    let out = std::process::Command::new("pdftotext")
+        .args(["-enc", "UTF-8"])
+        .arg(t.path("out/R-1.pdf"))
+        .arg("-")
+        .output()
+        .expect("pdftotext");
+    let text = String::from_utf8_lossy(&out.stdout).replace('\n', " ");
+    assert!(
+        text.contains("Deviation: quality-control exception"),
+        "{text}"
+    );
+    assert!(
+        text.contains("Reason: re-run not possible: sample consumed"),
+        "{text}"
+    );
+    assert!(
+        text.contains("X: issued under an accepted quality-control exception"),
+        "{text}"
+    );
+    assert!(text.contains("Quality control summary"));
     for (id, held) in [
         ("S1", true),
         ("S2", true),
