@@ -244,6 +244,51 @@ fn verification_keeps_or_replaces_the_mdl_in_force() {
     let r = t.limen(&["study", "ws/routine.csv", "--verify"]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
     assert!(r.stdout.contains("MAY BE KEPT"), "{}", r.stdout);
+    assert!(
+        !r.stdout.contains("a quarter"),
+        "two spikes in every quarter: {}",
+        r.stdout
+    );
+    // Drop November's spike: the fourth quarter has one.
+    let thin: String = s
+        .lines()
+        .filter(|l| !l.contains(",R7"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    t.write("ws/thin.csv", thin);
+    let r = t.limen(&["study", "ws/thin.csv", "--verify"]);
+    assert!(
+        r.stdout
+            .contains("2026-Q4 had 1 spike(s); Revision 2 asks for at least 2 a quarter"),
+        "{}",
+        r.stdout
+    );
+}
+
+#[test]
+fn each_analyte_matrix_and_method_is_computed_on_its_own() {
+    let t = fixture("study-groups");
+    let pb = study_csv(&SET1);
+    let cd: String = study_csv(&["1.6", "1.9", "1.3", "1.7", "2.1", "0.9", "1.8"])
+        .lines()
+        .skip(1)
+        .map(|l| format!("{}\n", l.replacen("Pb,", "Cd,", 1)))
+        .collect();
+    t.write("ws/two.csv", format!("{pb}{cd}"));
+    let r = t.limen(&["study", "ws/two.csv", "--csv", "ws/two-out.csv"]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    let out = t.read("ws/two-out.csv");
+    let analytes = util::csv_column(&out, "analyte");
+    let mdl: Vec<f64> = util::csv_column(&out, "mdl_s")
+        .iter()
+        .map(|v| v.parse().unwrap())
+        .collect();
+    assert_eq!(analytes, vec!["Pb", "Cd"]);
+    // Berthouex & Brown, Example 14.1: MDL 1.0 and 1.3 for the two sets.
+    assert_eq!(
+        (format!("{:.1}", mdl[0]), format!("{:.1}", mdl[1])),
+        ("1.0".into(), "1.3".into())
+    );
 }
 
 #[test]
