@@ -49,8 +49,8 @@ impl Kind {
     }
 
     pub fn parse(text: &str) -> Option<Kind> {
-        let t = text.trim().to_ascii_lowercase();
-        Kind::ALL.into_iter().find(|k| k.name() == t)
+        let t = text.trim();
+        Kind::ALL.into_iter().find(|k| k.name().eq_ignore_ascii_case(t))
     }
 }
 
