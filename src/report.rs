@@ -57,6 +57,8 @@ pub struct Header {
     pub client_contact: String,
     pub received_on: NaiveDate,
     pub issued_at: DateTime<Utc>,
+    /// The lab's offset from UTC: certificates print the issue date in lab time.
+    pub utc_offset: chrono::FixedOffset,
     pub tool_version: String,
     pub lab_name: String,
     pub lab_address: String,
@@ -183,6 +185,7 @@ pub fn build(
         client_contact: m.client_contact.clone(),
         received_on: m.received_on,
         issued_at: run.issued_at,
+        utc_offset: lab.utc_offset,
         tool_version: run.tool_version.clone(),
         lab_name: lab.name.clone(),
         lab_address: lab.address.clone(),

@@ -50,7 +50,9 @@ impl Kind {
 
     pub fn parse(text: &str) -> Option<Kind> {
         let t = text.trim();
-        Kind::ALL.into_iter().find(|k| k.name().eq_ignore_ascii_case(t))
+        Kind::ALL
+            .into_iter()
+            .find(|k| k.name().eq_ignore_ascii_case(t))
     }
 }
 

@@ -181,6 +181,20 @@ mod tests {
     }
 
     #[test]
+    fn utc_offsets() {
+        let lab = |o: &str| {
+            Lab::parse(
+                "lab.toml",
+                &format!("name='L'\naddress='A'\nsignatory='S'\nutc_offset='{o}'\n"),
+            )
+        };
+        assert_eq!(lab("+01:00").unwrap().utc_offset.local_minus_utc(), 3600);
+        assert_eq!(lab("-05:30").unwrap().utc_offset.local_minus_utc(), -19800);
+        assert!(lab("01:00").is_err());
+        assert!(lab("+15:00").is_err());
+    }
+
+    #[test]
     fn errors_carry_the_line() {
         let e = Lab::parse(
             "lab.toml",

@@ -120,7 +120,11 @@ pub fn context(report: &Report) -> Context {
         client_address: h.client_address.clone(),
         client_contact: h.client_contact.clone(),
         received_on: h.received_on.to_string(),
-        issued_on: h.issued_at.format("%Y-%m-%d").to_string(),
+        issued_on: h
+            .issued_at
+            .with_timezone(&h.utc_offset)
+            .format("%Y-%m-%d")
+            .to_string(),
         analysed_from: dates
             .clone()
             .min()
