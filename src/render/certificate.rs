@@ -794,3 +794,91 @@ impl Render for Certificate<'_> {
         Ok(Output { bytes, warnings })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::units::Unit;
+    use rust_decimal::Decimal;
+    use std::str::FromStr;
+
+    fn row(state: State, value: &str, verdict: Verdict) -> ReportRow {
+        let d = |s: &str| Decimal::from_str(s).unwrap();
+        ReportRow {
+            line: 2,
+            lab_id: "S1".into(),
+            client_id: String::new(),
+            description: String::new(),
+            analyte: "Pb".into(),
+            matrix: "paint".into(),
+            method: "6010D".into(),
+            analyzed_on: chrono::NaiveDate::from_ymd_opt(2026, 11, 13).unwrap(),
+            reported: value.into(),
+            value: Some(d(value)),
+            value_unrounded: d(value),
+            unit: Unit::MgPerKg,
+            state,
+            mdl: d("4"),
+            loq: d("12"),
+            mdl_unrounded: d("4"),
+            loq_unrounded: d("12"),
+            dilution: d("1"),
+            spec: Some("P".into()),
+            spec_limit: Some(d("90")),
+            spec_citation: "".into(),
+            verdict: Some(verdict),
+            uncertainty_pct: None,
+            qualifiers: Vec::new(),
+            limits_row: "S".into(),
+        }
+    }
+
+    /// x of the limit mark (the thickest line) and of the result dot or bar.
+    fn marks(items: &[Item]) -> (f32, Option<(f32, f32)>) {
+        let limit = items
+            .iter()
+            .filter_map(|i| match i {
+                Item::Line { x1, width, .. } if *width > 1.0 => Some(*x1),
+                _ => None,
+            })
+            .next()
+            .unwrap();
+        let result = items.iter().find_map(|i| match i {
+            Item::Rect { x, w, .. } => Some((*x, *x + *w)),
+            _ => None,
+        });
+        (limit, result)
+    }
+
+    #[test]
+    fn the_strip_puts_the_result_on_the_right_side_of_the_limit() {
+        let (limit, dot) = marks(&strip(
+            &row(State::Quantified, "25", Verdict::Pass),
+            80.0,
+            9.0,
+        ));
+        assert!(dot.unwrap().1 < limit, "a pass sits left of the limit");
+        let (limit, dot) = marks(&strip(
+            &row(State::Quantified, "300", Verdict::Fail),
+            80.0,
+            9.0,
+        ));
+        assert!(dot.unwrap().0 > limit, "a fail sits right of the limit");
+        for it in strip(&row(State::Quantified, "300", Verdict::Fail), 80.0, 9.0) {
+            if let Item::Rect { x, w, .. } = it {
+                assert!(x >= 0.0 - 2.0 && x + w <= 80.0 + 2.0, "inside the strip");
+            }
+        }
+        // Not detected: a bar from the left edge up to the MDL, below the limit.
+        let mut nd = row(State::NotDetected, "1", Verdict::Pass);
+        nd.reported = "< 4.00".into();
+        let (limit, bar) = marks(&strip(&nd, 80.0, 9.0));
+        let (start, end) = bar.unwrap();
+        assert_eq!(start, 0.0);
+        assert!(end < limit);
+        // No limit, no strip.
+        let mut none = row(State::Quantified, "25", Verdict::Pass);
+        none.spec_limit = None;
+        assert!(strip(&none, 80.0, 9.0).is_empty());
+    }
+}
