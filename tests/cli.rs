@@ -518,3 +518,23 @@ fn bad_register_and_specs_are_input_errors() {
         r.stderr
     );
 }
+
+#[test]
+fn a_workspace_is_not_a_batch() {
+    let t = TestDir::new("not-a-batch");
+    t.demo_workspace("ws");
+    let r = t.limen(&["check", "ws"]);
+    assert_eq!(r.code, 2);
+    assert!(
+        r.stderr
+            .contains("ws is not a batch folder (no batch.toml)"),
+        "{}",
+        r.stderr
+    );
+    assert!(
+        r.stderr
+            .contains("hint: batch folders here: ws/ceramics-2611-052"),
+        "{}",
+        r.stderr
+    );
+}

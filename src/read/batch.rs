@@ -348,6 +348,26 @@ impl Batch {
     pub fn load(dir: &Path) -> Result<Batch, ReadError> {
         let manifest_path = dir.join("batch.toml");
         let manifest_file = manifest_path.display().to_string();
+        if !manifest_path.is_file() {
+            let mut batches: Vec<String> = std::fs::read_dir(dir)
+                .map(|d| {
+                    d.flatten()
+                        .filter(|e| e.path().join("batch.toml").is_file())
+                        .map(|e| e.path().display().to_string())
+                        .collect()
+                })
+                .unwrap_or_default();
+            batches.sort();
+            return Err(ReadError::field(
+                Loc::file(&manifest_file),
+                format!("{} is not a batch folder (no batch.toml)", dir.display()),
+                if batches.is_empty() {
+                    "name the folder that holds the batch's batch.toml and results file".to_string()
+                } else {
+                    format!("batch folders here: {}", batches.join(", "))
+                },
+            ));
+        }
         let manifest_text = String::from_utf8(read_file(&manifest_path)?).map_err(|_| {
             ReadError::field(
                 Loc::file(&manifest_file),
