@@ -299,14 +299,9 @@ fn paragraph_blocks(flow: &mut Flow<'_>, text: &str, body: Style) {
                 flow.space(3.0);
             }
             Block::Bullet(p) => {
-                let baseline = flow.y + body.size;
+                // The bullet goes on the page its first line lands on.
                 flow.ensure(body.line_height());
-                let x = flow.margins.left + 2.0;
-                let y = if flow.y + body.size == baseline {
-                    baseline
-                } else {
-                    flow.y + body.size
-                };
+                let (x, y) = (flow.margins.left + 2.0, flow.y + body.size);
                 flow.text_at(x, y, "•", body);
                 flow.paragraph(&p, body, 10.0);
                 flow.space(1.5);
