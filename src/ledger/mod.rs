@@ -18,6 +18,7 @@ const MIGRATIONS: &[&str] = &[
         report TEXT NOT NULL,
         revision INTEGER NOT NULL,
         status TEXT NOT NULL CHECK (status IN ('pending', 'issued')),
+        owner_pid INTEGER NOT NULL DEFAULT 0,
         issued_at TEXT NOT NULL,
         local_offset TEXT NOT NULL,
         signatory TEXT NOT NULL,
@@ -272,21 +273,31 @@ impl Ledger {
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)
             .map_err(err)?;
-        let pending: Vec<(i64, String, u32, String)> = {
+        let pending: Vec<(i64, String, u32, String, i64)> = {
             let mut st = tx
                 .prepare(
-                    "SELECT id, report, revision, out_dir FROM reports WHERE status = 'pending'",
+                    "SELECT id, report, revision, out_dir, owner_pid FROM reports WHERE status = 'pending'",
                 )
                 .map_err(err)?;
             st.query_map([], |r| {
-                Ok((r.get(0)?, r.get(1)?, r.get::<_, i64>(2)? as u32, r.get(3)?))
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get::<_, i64>(2)? as u32,
+                    r.get(3)?,
+                    r.get::<_, i64>(4)?,
+                ))
             })
             .map_err(err)?
             .collect::<Result<_, _>>()
             .map_err(err)?
         };
         let mut notes = Vec::new();
-        for (id, report, revision, out_dir) in pending {
+        for (id, report, revision, out_dir, pid) in pending {
+            // Another process still at work on its issue: not ours to settle.
+            if pid as u32 != std::process::id() && Path::new(&format!("/proc/{pid}")).exists() {
+                continue;
+            }
             let files: Vec<(String, String, String)> = {
                 let mut st = tx
                     .prepare("SELECT name, tmp, sha256 FROM files WHERE report_id = ?1")
@@ -472,8 +483,9 @@ impl Ledger {
         let s = &rec.snapshot;
         tx.execute(
             "INSERT INTO reports (report, revision, status, issued_at, local_offset, signatory, tool_version, reason, changed,
-               changed_count, out_dir, batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows)
-             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
+               changed_count, out_dir, batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows,
+               owner_pid)
+             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19)",
             params![
                 h.report,
                 h.revision,
@@ -493,6 +505,7 @@ impl Ledger {
                 s.results,
                 s.limits_rows,
                 s.spec_rows,
+                std::process::id() as i64,
             ],
         )
         .map_err(err)?;
@@ -552,10 +565,20 @@ impl Ledger {
 
     /// Marks a pending issue complete, once its files are in place.
     pub fn complete(&mut self, id: i64) -> Result<(), LedgerError> {
-        self.conn
-            .execute("UPDATE reports SET status = 'issued' WHERE id = ?1", [id])
-            .map(|_| ())
-            .map_err(self.sql())
+        let n = self
+            .conn
+            .execute(
+                "UPDATE reports SET status = 'issued' WHERE id = ?1 AND status = 'pending'",
+                [id],
+            )
+            .map_err(self.sql())?;
+        if n != 1 {
+            return Err(LedgerError::Sql {
+                path: self.path.clone(),
+                message: format!("the pending record {id} is gone; the issue was not completed"),
+            });
+        }
+        Ok(())
     }
 }
 
