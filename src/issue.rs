@@ -89,8 +89,22 @@ fn stop_at(fault: Option<Fault>, here: Fault) {
     }
 }
 
+/// The report's files with its verification code (the first 16 hex digits
+/// of the CSV's SHA-256) set on the report and printed on the certificate.
+pub fn render_coded(
+    report: &mut Report,
+    templates: &Templates,
+) -> Result<(Vec<IssuedFile>, Vec<String>), RenderError> {
+    let csv = Csv.bytes(report);
+    report.header.verification_code = Some(crate::ledger::verification_code(&csv));
+    render(report, templates)
+}
+
 /// What a recorded issue needs besides the report.
 pub struct Record<'a> {
+    /// Files already rendered with `render_coded`, so that several reports
+    /// can all be rendered before any is recorded; None renders here.
+    pub rendered: Option<(Vec<IssuedFile>, Vec<String>)>,
     pub snapshot: crate::ledger::Snapshot,
     pub local_offset: String,
     pub reason: String,
@@ -119,9 +133,10 @@ pub fn issue_recorded(
             .into());
         }
     }
-    let csv = Csv.bytes(report);
-    report.header.verification_code = Some(crate::ledger::verification_code(&csv));
-    let (files, warnings) = render(report, rec.templates)?;
+    let (files, warnings) = match rec.rendered {
+        Some(done) => done,
+        None => render_coded(report, rec.templates)?,
+    };
     check_free(
         dir,
         &files.iter().map(|f| f.name.clone()).collect::<Vec<_>>(),

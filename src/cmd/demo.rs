@@ -74,6 +74,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             continue;
         }
         let record = Record {
+            rendered: None,
             snapshot: snapshot(&ws, &batch, &report),
             local_offset: ws.lab.utc_offset.to_string(),
             reason: String::new(),

@@ -107,11 +107,18 @@ pub fn run(a: Args) -> Result<i32, Error> {
             a.out.display()
         );
     }
+    // Every file of every report is rendered before any is recorded, so a
+    // rendering error leaves nothing issued.
+    let mut rendered = Vec::new();
+    for (report, _, k) in reports.iter_mut() {
+        progress.step(&format!("rendering {}", report.header.report));
+        rendered.push(limen::issue::render_coded(report, &workspaces[*k].2)?);
+    }
     let mut lines = Vec::new();
-    for (mut report, batch, k) in reports {
-        progress.step(&format!("issuing {}", report.header.report));
+    for ((mut report, batch, k), files) in reports.into_iter().zip(rendered) {
         let (_, ws, templates) = &workspaces[k];
         let record = limen::issue::Record {
+            rendered: Some(files),
             snapshot: limen::ledger::recompute::snapshot(ws, &batch, &report),
             local_offset: ws.lab.utc_offset.to_string(),
             reason: String::new(),

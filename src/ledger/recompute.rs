@@ -350,6 +350,7 @@ pub fn reissue(
         changed: changed.clone(),
     });
     let record = crate::issue::Record {
+        rendered: None,
         snapshot: snapshot(&ws, &batch, &report),
         local_offset: req.local_offset.clone(),
         reason: req.reason.trim().to_string(),
