@@ -71,6 +71,9 @@ fn every_result_appears_with_the_trade_characters() {
     assert!(text.contains("µg/L"), "µ must survive as µ");
     assert!(text.contains("≤ 20 %"), "≤ must survive as ≤");
     assert!(text.contains("Stoneware mug, speckled"));
+    // Each limit applied is listed as published, with its source.
+    assert!(text.contains("0.5 µg/mL"), "{text}");
+    assert!(text.contains("FDA CPG Sec. 545.450 (lead: cups and mugs)"));
 }
 
 #[test]

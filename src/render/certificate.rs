@@ -567,6 +567,62 @@ impl Certificate<'_> {
         flow.table(&results);
         flow.space(3.0);
         flow.paragraph(&label("strip_legend"), Style::new(6.5).color(GREY), 0.0);
+        if !report.specs_used.is_empty() {
+            flow.space(6.0);
+            flow.ensure(40.0);
+            flow.paragraph(&label("limits_applied"), body.bold(), 0.0);
+            let w = scaled(&[80.0, 60.0, 70.0, 240.0, 65.0], cw);
+            flow.table(&Table {
+                columns: vec![
+                    Column {
+                        title: label("spec"),
+                        width: w[0],
+                        align: Align::Left,
+                    },
+                    Column {
+                        title: label("analyte"),
+                        width: w[1],
+                        align: Align::Left,
+                    },
+                    Column {
+                        title: label("limit"),
+                        width: w[2],
+                        align: Align::Left,
+                    },
+                    Column {
+                        title: label("citation"),
+                        width: w[3],
+                        align: Align::Left,
+                    },
+                    Column {
+                        title: label("in_force"),
+                        width: w[4],
+                        align: Align::Left,
+                    },
+                ],
+                show_header: true,
+                header: small.bold(),
+                body: small,
+                rows: report
+                    .specs_used
+                    .iter()
+                    .map(|s| Row {
+                        cells: vec![
+                            Cell::Text(s.spec.to_string()),
+                            Cell::Text(if s.matrix.is_empty() {
+                                s.analyte.clone()
+                            } else {
+                                format!("{} ({})", s.analyte, s.matrix)
+                            }),
+                            Cell::Text(format!("{} {}", s.limit, s.unit)),
+                            Cell::Text(s.citation.to_string()),
+                            Cell::Text(s.effective_from.to_string()),
+                        ],
+                        rule_above: false,
+                    })
+                    .collect(),
+            });
+        }
         flow.space(4.0);
         paragraph_blocks(&mut flow, &t.render("statement", &ctx)?, body.bold());
         flow.space(4.0);
