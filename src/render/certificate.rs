@@ -571,7 +571,7 @@ impl Certificate<'_> {
             flow.space(6.0);
             flow.ensure(40.0);
             flow.paragraph(&label("limits_applied"), body.bold(), 0.0);
-            let w = scaled(&[80.0, 60.0, 70.0, 240.0, 65.0], cw);
+            let w = scaled(&[72.0, 100.0, 58.0, 220.0, 65.0], cw);
             flow.table(&Table {
                 columns: vec![
                     Column {
