@@ -339,3 +339,40 @@ fn a_newer_or_corrupt_ledger_is_refused_and_left_alone() {
     assert_eq!(t.read("ws/ledger.sqlite"), before);
     assert!(!t.exists("out/R-0.csv"));
 }
+
+#[test]
+fn impact_since_a_date_looks_only_at_later_issues() {
+    let t = TestDir::new("ledger-since");
+    t.demo_workspace("ws");
+    let at = |epoch: &str, batch: &str| {
+        Command::new(env!("CARGO_BIN_EXE_limen"))
+            .args(["issue", batch, "--out", "out"])
+            .current_dir(&t.root)
+            .env("SOURCE_DATE_EPOCH", epoch)
+            .output()
+            .unwrap()
+    };
+    // 2026-11-18 and 2026-11-25.
+    assert!(
+        at("1795000000", "ws/furniture-jewellery-2611-041")
+            .status
+            .success()
+    );
+    assert!(at("1795600000", "ws/ceramics-2611-052").status.success());
+    update_register(&t);
+    let r = ws(&t, &["impact", "--format", "csv"]);
+    assert_eq!(csv_column(&r.stdout, "report"), vec!["COA-2611-041"]);
+    // Only the ceramics report was issued on or after 2026-11-20, and it is unaffected.
+    let r = ws(&t, &["impact", "--since", "2026-11-20"]);
+    assert_eq!(r.code, 0, "{}", r.stdout);
+    assert!(
+        r.stdout.contains("checked 1 issued report(s)"),
+        "{}",
+        r.stdout
+    );
+    let r = ws(&t, &["impact", "--since", "2026-11-18", "--format", "csv"]);
+    assert_eq!(
+        (r.code, csv_column(&r.stdout, "report")),
+        (3, vec!["COA-2611-041".to_string()])
+    );
+}
