@@ -31,7 +31,10 @@ pub fn run(a: Args) -> Result<i32, Error> {
                 out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes());
         }
         Format::Csv => {
-            let _ = out.write_all(&Csv.bytes(&report));
+            let _ = Csv.write(
+                &report,
+                std::io::BufWriter::with_capacity(1 << 16, &mut out),
+            );
             for p in &report.problems {
                 eprintln!("blocked: {p}");
                 eprintln!("hint: {}", p.hint);

@@ -40,43 +40,45 @@ pub fn neutralise(text: &str) -> std::borrow::Cow<'_, str> {
     }
 }
 
-fn write_row(w: &mut ::csv::Writer<Vec<u8>>, num: &mut String, report: &Report, r: &ReportRow) {
+fn write_row<W: std::io::Write>(
+    w: &mut ::csv::Writer<W>,
+    num: &mut String,
+    report: &Report,
+    r: &ReportRow,
+) -> ::csv::Result<()> {
     use std::fmt::Write as _;
-    // Writing to a Vec cannot fail.
-    let text = |w: &mut ::csv::Writer<Vec<u8>>, s: &str| {
-        let _ = w.write_field(neutralise(s).as_bytes());
-    };
-    let mut number = |w: &mut ::csv::Writer<Vec<u8>>, v: &dyn std::fmt::Display| {
+    let text = |w: &mut ::csv::Writer<W>, s: &str| w.write_field(neutralise(s).as_bytes());
+    let mut number = |w: &mut ::csv::Writer<W>, v: &dyn std::fmt::Display| {
         num.clear();
         let _ = write!(num, "{v}");
-        let _ = w.write_field(num.as_bytes());
+        w.write_field(num.as_bytes())
     };
-    text(w, &report.header.report);
-    number(w, &report.header.revision);
-    text(w, &r.lab_id);
-    text(w, &r.client_id);
-    text(w, &r.description);
-    text(w, &r.analyte);
-    text(w, &r.matrix);
-    text(w, &r.method);
-    number(w, &r.analyzed_on);
-    text(w, &r.reported);
+    text(w, &report.header.report)?;
+    number(w, &report.header.revision)?;
+    text(w, &r.lab_id)?;
+    text(w, &r.client_id)?;
+    text(w, &r.description)?;
+    text(w, &r.analyte)?;
+    text(w, &r.matrix)?;
+    text(w, &r.method)?;
+    number(w, &r.analyzed_on)?;
+    text(w, &r.reported)?;
     match r.value {
-        Some(v) => number(w, &v),
-        None => number(w, &""),
+        Some(v) => number(w, &v)?,
+        None => number(w, &"")?,
     }
-    number(w, &plain(r.value_unrounded));
-    text(w, r.unit.symbol());
-    text(w, r.state.name());
-    number(w, &r.mdl);
-    number(w, &r.loq);
-    number(w, &plain(r.dilution));
-    text(w, r.spec.as_deref().unwrap_or(""));
-    number(w, &r.spec_limit.map(plain).unwrap_or_default());
-    text(w, r.verdict.map(|v| v.name()).unwrap_or(""));
-    text(w, &qualifiers(report, r));
-    text(w, &r.limits_row);
-    let _ = w.write_record(None::<&[u8]>);
+    number(w, &plain(r.value_unrounded))?;
+    text(w, r.unit.symbol())?;
+    text(w, r.state.name())?;
+    number(w, &r.mdl)?;
+    number(w, &r.loq)?;
+    number(w, &plain(r.dilution))?;
+    text(w, r.spec.as_deref().unwrap_or(""))?;
+    number(w, &r.spec_limit.map(plain).unwrap_or_default())?;
+    text(w, r.verdict.map(|v| v.name()).unwrap_or(""))?;
+    text(w, &qualifiers(report, r))?;
+    text(w, &r.limits_row)?;
+    w.write_record(None::<&[u8]>)
 }
 
 /// Qualifiers joined by ';'; an accepted QC exception carries its reason.
@@ -108,15 +110,24 @@ impl Render for Csv {
 
 impl Csv {
     pub fn bytes(&self, report: &Report) -> Vec<u8> {
+        let mut out = Vec::with_capacity(180 * (report.rows.len() + 1));
+        // Writing to a Vec cannot fail.
+        let _ = self.write(report, &mut out);
+        out
+    }
+
+    /// Streams the CSV to `out`, so a large report is not held twice.
+    pub fn write(&self, report: &Report, out: impl std::io::Write) -> std::io::Result<()> {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
-            .from_writer(Vec::with_capacity(180 * (report.rows.len() + 1)));
-        let _ = w.write_record(HEADER);
+            .from_writer(out);
+        let io = |e: ::csv::Error| std::io::Error::other(e.to_string());
+        w.write_record(HEADER).map_err(io)?;
         let mut num = String::new();
         for r in &report.rows {
-            write_row(&mut w, &mut num, report, r);
+            write_row(&mut w, &mut num, report, r).map_err(io)?;
         }
-        w.into_inner().unwrap_or_default()
+        w.flush()
     }
 }
 
