@@ -186,9 +186,9 @@ pub fn precision(
     c: &Criteria,
 ) -> Option<(&'static str, String, String, bool)> {
     let floor = loq.checked_mul(c.rpd_min_loq_factor)?;
-    let diff = (a - b).abs();
+    let diff = a.checked_sub(b)?.abs();
     if a >= floor && b >= floor {
-        let mean = (a + b) / Decimal::TWO;
+        let mean = a.checked_add(b)?.checked_div(Decimal::TWO)?;
         let rpd = diff.checked_mul(Decimal::ONE_HUNDRED)?.checked_div(mean)?;
         Some((
             "RPD",
@@ -319,14 +319,20 @@ pub fn evaluate(
         let mut threshold = m.mdl;
         let mut basis = "MDL";
         if let Some(l) = lowest_limit {
-            let t = l * c.blank_limit_pct / hundred;
+            let t = l
+                .checked_mul(c.blank_limit_pct)
+                .and_then(|x| x.checked_div(hundred))
+                .ok_or_else(|| overflow(q))?;
             if t > threshold {
                 threshold = t;
                 basis = "of the limit";
             }
         }
         if let Some(v) = lowest_result {
-            let t = v * c.blank_sample_pct / hundred;
+            let t = v
+                .checked_mul(c.blank_sample_pct)
+                .and_then(|x| x.checked_div(hundred))
+                .ok_or_else(|| overflow(q))?;
             if t > threshold {
                 threshold = t;
                 basis = "of the lowest result";
@@ -504,7 +510,10 @@ pub fn evaluate(
             });
             continue;
         }
-        let recovery = (m.value - parent)
+        let recovery = m
+            .value
+            .checked_sub(parent)
+            .ok_or_else(|| overflow(q))?
             .checked_mul(Decimal::ONE_HUNDRED)
             .and_then(|x| x.checked_div(spike))
             .ok_or_else(|| overflow(q))?;

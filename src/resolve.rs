@@ -88,7 +88,12 @@ pub fn reading_to_sample(row: &ResultRow, x: Decimal, x_unit: Unit) -> Option<Op
             let den = m.checked_mul(Decimal::ONE_THOUSAND)?;
             Some(Some(num.checked_div(den)?))
         }
-        _ => Some(convert(diluted, x_unit, row.reading_unit)),
+        _ => {
+            if x_unit.dimension() != row.reading_unit.dimension() {
+                return Some(None);
+            }
+            convert(diluted, x_unit, row.reading_unit).map(Some)
+        }
     }
 }
 
@@ -106,7 +111,11 @@ fn fraction_to_sample(row: &ResultRow, limits: &LimitRow, x: Decimal) -> Option<
         den = den.checked_mul(nominal)?;
     }
     let scaled = num.checked_div(den)?;
-    Some(convert(scaled, limits.unit, result_unit(row)))
+    // Outer None: overflow; inner None: the units cannot meet.
+    if limits.unit.dimension() != result_unit(row).dimension() {
+        return Some(None);
+    }
+    convert(scaled, limits.unit, result_unit(row)).map(Some)
 }
 
 fn limit_to_sample(row: &ResultRow, limits: &LimitRow, x: Decimal) -> Option<Option<Decimal>> {

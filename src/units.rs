@@ -121,7 +121,8 @@ impl fmt::Display for Unit {
     }
 }
 
-/// Converts within one dimension; None across dimensions.
+/// Converts within one dimension; None across dimensions (or for a value
+/// too large to convert, which no measurement is).
 pub fn convert(value: Decimal, from: Unit, to: Unit) -> Option<Decimal> {
     if from.dimension() != to.dimension() {
         return None;
@@ -129,7 +130,9 @@ pub fn convert(value: Decimal, from: Unit, to: Unit) -> Option<Decimal> {
     if from == to || from.base_factor() == to.base_factor() {
         return Some(value);
     }
-    Some(value * from.base_factor() / to.base_factor())
+    value
+        .checked_mul(from.base_factor())?
+        .checked_div(to.base_factor())
 }
 
 #[cfg(test)]
@@ -187,6 +190,11 @@ mod tests {
     #[test]
     fn dimensions_do_not_mix() {
         assert_eq!(convert(d("1"), Unit::MgPerL, Unit::MgPerKg), None);
+    }
+
+    #[test]
+    fn overflow_is_not_a_panic() {
+        assert_eq!(convert(Decimal::MAX, Unit::Percent, Unit::MgPerKg), None);
     }
 
     #[test]

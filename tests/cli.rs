@@ -538,3 +538,27 @@ fn a_workspace_is_not_a_batch() {
         r.stderr
     );
 }
+
+#[test]
+fn extreme_numbers_are_errors_not_panics() {
+    for reading in [
+        "79228162514264337593543950335",
+        "-79228162514264337593543950335",
+        "7.9e27",
+    ] {
+        let t = fixture(
+            "extreme",
+            &rows(&format!(
+                "S1,,,sample,Pb,paint,6010D,{reading},ug/L,1000,0.0000001,50,2026-11-13,PAINT,\n"
+            )),
+        );
+        let r = t.limen(&["check", "ws/b1"]);
+        assert_eq!(r.code, 2, "{reading}: {}{}", r.stdout, r.stderr);
+        assert!(
+            r.stderr.contains("results.csv:2: field `reading`"),
+            "{}",
+            r.stderr
+        );
+        assert!(!r.stderr.contains("panicked"), "{}", r.stderr);
+    }
+}
