@@ -316,26 +316,21 @@ pub fn evaluate(
             .filter(|&&i| matches!(rows[i].state, State::DetectedBelowLoq | State::Quantified))
             .map(|&i| rows[i].value_unrounded)
             .min();
+        // The highest of the MDL and the two percentages governs.
         let mut threshold = m.mdl;
         let mut basis = "MDL";
-        if let Some(l) = lowest_limit {
-            let t = l
-                .checked_mul(c.blank_limit_pct)
+        for (base, pct, name) in [
+            (lowest_limit, c.blank_limit_pct, "of the limit"),
+            (lowest_result, c.blank_sample_pct, "of the lowest result"),
+        ] {
+            let Some(base) = base else { continue };
+            let t = base
+                .checked_mul(pct)
                 .and_then(|x| x.checked_div(hundred))
                 .ok_or_else(|| overflow(q))?;
             if t > threshold {
                 threshold = t;
-                basis = "of the limit";
-            }
-        }
-        if let Some(v) = lowest_result {
-            let t = v
-                .checked_mul(c.blank_sample_pct)
-                .and_then(|x| x.checked_div(hundred))
-                .ok_or_else(|| overflow(q))?;
-            if t > threshold {
-                threshold = t;
-                basis = "of the lowest result";
+                basis = name;
             }
         }
         let pass = m.value < threshold;

@@ -132,18 +132,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     );
     limen::study::register_update::append(&ws_dir.join("limits.csv"), &rows)?;
     for r in &rows {
-        println!(
-            "-> register row added: {} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({})",
-            r.analyte,
-            r.matrix,
-            r.method,
-            r.mdl,
-            r.unit,
-            r.loq,
-            r.unit,
-            r.effective_from,
-            r.study_id
-        );
+        println!("-> register row added: {}", r.describe());
     }
 
     step("3. which issued reports does the change affect?");

@@ -300,18 +300,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         register_update::append(&reg_path, &rows)?;
         println!("appended to {}:", reg_path.display());
         for r in &rows {
-            println!(
-                "  {} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({})",
-                r.analyte,
-                r.matrix,
-                r.method,
-                r.mdl,
-                r.unit,
-                r.loq,
-                r.unit,
-                r.effective_from,
-                r.study_id
-            );
+            println!("  {}", r.describe());
         }
     }
     Ok(EXIT_OK)

@@ -6,7 +6,8 @@ use crate::study::calibration::CalibrationResult;
 use crate::study::mdl::MdlResult;
 use crate::study::verify::VerifyResult;
 
-fn g(x: f64) -> String {
+/// Three significant figures for study values on screen and paper.
+pub fn g(x: f64) -> String {
     if !x.is_finite() {
         return "–".into();
     }

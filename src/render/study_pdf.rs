@@ -2,6 +2,7 @@
 //! results, a dot plot of the replicates and the data table.
 
 use super::RenderError;
+use super::study::g;
 use crate::layout::{Align, Cell, Column, Flow, GREY, Item, LIGHT, Margins, Row, Style, Table};
 use crate::study::mdl::MdlResult;
 use crate::study::{Group, StudyKind};
@@ -9,19 +10,6 @@ use crate::study::{Group, StudyKind};
 const RED: (f32, f32, f32) = (0.78, 0.12, 0.12);
 const BLUE: (f32, f32, f32) = (0.25, 0.40, 0.70);
 const AMBER: (f32, f32, f32) = (0.85, 0.55, 0.05);
-
-fn g(x: f64) -> String {
-    if !x.is_finite() {
-        return "–".into();
-    }
-    let a = x.abs();
-    let digits = if a == 0.0 {
-        3
-    } else {
-        (3 - a.log10().floor() as i32 - 1).clamp(0, 8) as usize
-    };
-    format!("{x:.digits$}")
-}
 
 /// Spikes and blanks on a linear axis, with the mean of the spikes, the MDL
 /// and the LOQ as vertical lines. Items relative to (0, 0), `w` × 70 pt.

@@ -70,6 +70,22 @@ pub struct NewRow {
 }
 
 impl NewRow {
+    /// The row in words, as the terminal shows it.
+    pub fn describe(&self) -> String {
+        format!(
+            "{} / {} / {}: MDL {} {}, LOQ {} {}, in force from {} ({})",
+            self.analyte,
+            self.matrix,
+            self.method,
+            self.mdl,
+            self.unit,
+            self.loq,
+            self.unit,
+            self.effective_from,
+            self.study_id
+        )
+    }
+
     fn cell(&self, column: &str) -> String {
         match column {
             "analyte" => self.analyte.clone(),
