@@ -100,6 +100,14 @@ impl LedgerError {
     }
 }
 
+/// Maps an SQLite error to ours, naming the ledger file.
+fn sql_error(path: &str) -> impl Fn(rusqlite::Error) -> LedgerError + '_ {
+    move |e| LedgerError::Sql {
+        path: path.to_string(),
+        message: e.to_string(),
+    }
+}
+
 pub fn sha256_hex(bytes: &[u8]) -> String {
     Sha256::digest(bytes)
         .iter()
@@ -240,10 +248,7 @@ impl Ledger {
 
     fn migrate(&mut self) -> Result<(), LedgerError> {
         let path = self.path.clone();
-        let err = |e: rusqlite::Error| LedgerError::Sql {
-            path: path.clone(),
-            message: e.to_string(),
-        };
+        let err = sql_error(&path);
         let tx = self
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)
@@ -265,10 +270,7 @@ impl Ledger {
     /// removed and the record dropped, as though it never started.
     fn recover(&mut self) -> Result<Vec<String>, LedgerError> {
         let path = self.path.clone();
-        let err = |e: rusqlite::Error| LedgerError::Sql {
-            path: path.clone(),
-            message: e.to_string(),
-        };
+        let err = sql_error(&path);
         let tx = self
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)
@@ -456,10 +458,7 @@ impl Ledger {
     /// revision 0 whose report number exists, or a revision already taken.
     pub fn begin(&mut self, rec: &NewRecord<'_>) -> Result<i64, LedgerError> {
         let path = self.path.clone();
-        let err = |e: rusqlite::Error| LedgerError::Sql {
-            path: path.clone(),
-            message: e.to_string(),
-        };
+        let err = sql_error(&path);
         let h = &rec.report.header;
         let tx = self
             .conn
