@@ -101,7 +101,7 @@ impl LedgerError {
 }
 
 /// Maps an SQLite error to ours, naming the ledger file.
-fn sql_error(path: &str) -> impl Fn(rusqlite::Error) -> LedgerError + '_ {
+fn sql_error(path: &str) -> impl Fn(rusqlite::Error) -> LedgerError + Copy + '_ {
     move |e| LedgerError::Sql {
         path: path.to_string(),
         message: e.to_string(),
