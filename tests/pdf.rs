@@ -93,6 +93,11 @@ fn the_footnote_explains_only_the_states_present() {
     // Only the furniture report has inconclusive results (P05's 12 mg chip).
     assert!(furniture.contains("Inconclusive: for P05 Pb, P05 Cd"));
     assert!(!ceramics.contains("Inconclusive: for"));
+    // Under the guard band each quantified result carries U (k = 2): P01 Pb
+    // 74.63 mg/kg × 12 % = 8.96, shown to 2 figures as 9.0.
+    assert!(furniture.contains("± 9.0"), "{furniture}");
+    assert!(furniture.contains("expanded measurement uncertainty U, with a coverage factor k = 2"));
+    assert!(!ceramics.contains("coverage factor k = 2"));
     // Guarded rule on one, simple on the other.
     assert!(furniture.contains("guard band equal to the expanded measurement uncertainty"));
     assert!(ceramics.contains("simple acceptance"));

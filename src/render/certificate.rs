@@ -66,6 +66,7 @@ pub struct Context {
     revision_reason: String,
     changed_results: String,
     changed_list: Vec<String>,
+    has_uncertainty: bool,
 }
 
 /// "lowest (id) to highest (id)", per unit.
@@ -173,7 +174,24 @@ pub fn context(report: &Report) -> Context {
             })
             .unwrap_or_default(),
         changed_list: replaces.map(|r| r.changed.clone()).unwrap_or_default(),
+        has_uncertainty: rows
+            .iter()
+            .any(|r| uncertainty(r, h.significant_figures).is_some()),
     }
+}
+
+/// The expanded uncertainty U (k = 2) of a quantified result, in its unit,
+/// when the result carries one.
+pub fn uncertainty(r: &ReportRow, sig: u32) -> Option<rust_decimal::Decimal> {
+    if r.state != State::Quantified {
+        return None;
+    }
+    let u = r
+        .value_unrounded
+        .abs()
+        .checked_mul(r.uncertainty_pct?)?
+        .checked_div(rust_decimal::Decimal::ONE_HUNDRED)?;
+    Some(crate::numeric::round_sig(u, sig.min(2)))
 }
 
 fn qualifier_codes(r: &ReportRow) -> String {
@@ -483,7 +501,10 @@ impl Certificate<'_> {
                     },
                     Cell::Text(if first { item } else { String::new() }),
                     Cell::Text(r.analyte.to_string()),
-                    Cell::Text(r.reported.clone()),
+                    Cell::Text(match uncertainty(r, h.significant_figures) {
+                        Some(u) => format!("{}\n± {u}", r.reported),
+                        None => r.reported.clone(),
+                    }),
                     Cell::Text(qualifier_codes(r)),
                     Cell::Text(r.unit.symbol().to_string()),
                     Cell::Text(r.mdl.to_string()),
