@@ -225,3 +225,29 @@ fn a_workspace_template_changes_the_wording() {
         "nothing is written when the certificate fails"
     );
 }
+
+#[test]
+fn page_size_comes_from_lab_toml() {
+    let t = TestDir::new("pdf-letter");
+    t.demo_workspace("ws");
+    let lab = t
+        .read("ws/lab.toml")
+        .replace("page_size = \"A4\"", "page_size = \"Letter\"");
+    t.write("ws/lab.toml", lab);
+    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let info = Command::new("pdfinfo")
+        .arg(t.path("out/COA-2611-052.pdf"))
+        .output()
+        .expect("pdfinfo");
+    let info = String::from_utf8_lossy(&info.stdout);
+    assert!(info.contains("612 x 792 pts (letter)"), "{info}");
+    assert!(
+        info.contains("Title:           COA-2611-052 revision 0"),
+        "{info}"
+    );
+    assert!(
+        info.contains("Author:          Kestrel Bay Analytical Laboratory"),
+        "{info}"
+    );
+}
