@@ -226,6 +226,45 @@ struct SpikePair {
     loq: Decimal,
 }
 
+/// A check whose failure qualifies one parent sample.
+struct ParentCheck<'a> {
+    check: &'static str,
+    analyte: &'a Arc<str>,
+    method: &'a Arc<str>,
+    rows: String,
+    value: String,
+    window: String,
+    pass: bool,
+    qualifier: &'static str,
+}
+
+fn on_parent(
+    c: ParentCheck<'_>,
+    parent: usize,
+    parent_id: &str,
+    qualify: &mut Vec<(usize, &'static str)>,
+) -> QcCheck {
+    if !c.pass {
+        qualify.push((parent, c.qualifier));
+    }
+    QcCheck {
+        check: c.check,
+        analyte: c.analyte.clone(),
+        method: c.method.clone(),
+        rows: c.rows,
+        value: c.value,
+        window: c.window,
+        outcome: if c.pass { Outcome::Pass } else { Outcome::Fail },
+        note: if c.pass {
+            String::new()
+        } else {
+            format!("{}: {parent_id}", c.qualifier)
+        },
+        blocking: false,
+        affected: if c.pass { Vec::new() } else { vec![parent] },
+    }
+}
+
 pub struct QcResult {
     pub checks: Vec<QcCheck>,
     pub problems: Vec<Problem>,
@@ -513,25 +552,21 @@ pub fn evaluate(
             .and_then(|x| x.checked_div(spike))
             .ok_or_else(|| overflow(q))?;
         let pass = within(recovery, c.spike_recovery_pct);
-        if !pass {
-            qualify.push((p, MATRIX_EFFECT));
-        }
-        checks.push(QcCheck {
-            check: name,
-            analyte: q.analyte.clone(),
-            method: q.method.clone(),
-            rows: rows_text,
-            value: pct(recovery),
-            window: window(c.spike_recovery_pct),
-            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
-            note: if pass {
-                String::new()
-            } else {
-                format!("{MATRIX_EFFECT}: {}", rows[p].lab_id)
+        checks.push(on_parent(
+            ParentCheck {
+                check: name,
+                analyte: &q.analyte,
+                method: &q.method,
+                rows: rows_text,
+                value: pct(recovery),
+                window: window(c.spike_recovery_pct),
+                pass,
+                qualifier: MATRIX_EFFECT,
             },
-            blocking: false,
-            affected: if pass { Vec::new() } else { vec![p] },
-        });
+            p,
+            &rows[p].lab_id,
+            &mut qualify,
+        ));
     }
     let mut pairs: Vec<_> = spiked.into_iter().collect();
     pairs.sort_by(|a, b| a.0.cmp(&b.0));
@@ -547,29 +582,25 @@ pub fn evaluate(
                 at: Loc::new(&rows[p].lab_id, rows[p].line, "reading"),
             });
         };
-        if !pass {
-            qualify.push((p, IMPRECISE));
-        }
-        checks.push(QcCheck {
-            check: if kind == "RPD" {
-                "spike duplicate RPD"
-            } else {
-                "spike duplicate difference"
+        checks.push(on_parent(
+            ParentCheck {
+                check: if kind == "RPD" {
+                    "spike duplicate RPD"
+                } else {
+                    "spike duplicate difference"
+                },
+                analyte: &rows[p].analyte,
+                method: &rows[p].method,
+                rows: format!("{ms_id} / {msd_id}"),
+                value,
+                window: win,
+                pass,
+                qualifier: IMPRECISE,
             },
-            analyte: rows[p].analyte.clone(),
-            method: rows[p].method.clone(),
-            rows: format!("{ms_id} / {msd_id}"),
-            value,
-            window: win,
-            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
-            note: if pass {
-                String::new()
-            } else {
-                format!("{IMPRECISE}: {}", rows[p].lab_id)
-            },
-            blocking: false,
-            affected: if pass { Vec::new() } else { vec![p] },
-        });
+            p,
+            &rows[p].lab_id,
+            &mut qualify,
+        ));
     }
 
     // Laboratory duplicates.
@@ -592,29 +623,25 @@ pub fn evaluate(
             c,
         )
         .ok_or_else(|| overflow(q))?;
-        if !pass {
-            qualify.push((p, IMPRECISE));
-        }
-        checks.push(QcCheck {
-            check: if kind == "RPD" {
-                "duplicate RPD"
-            } else {
-                "duplicate difference"
+        checks.push(on_parent(
+            ParentCheck {
+                check: if kind == "RPD" {
+                    "duplicate RPD"
+                } else {
+                    "duplicate difference"
+                },
+                analyte: &q.analyte,
+                method: &q.method,
+                rows: format!("{} / {}", parent.lab_id, q.lab_id),
+                value,
+                window: win,
+                pass,
+                qualifier: IMPRECISE,
             },
-            analyte: q.analyte.clone(),
-            method: q.method.clone(),
-            rows: format!("{} / {}", parent.lab_id, q.lab_id),
-            value,
-            window: win,
-            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
-            note: if pass {
-                String::new()
-            } else {
-                format!("{IMPRECISE}: {}", parent.lab_id)
-            },
-            blocking: false,
-            affected: if pass { Vec::new() } else { vec![p] },
-        });
+            p,
+            &parent.lab_id,
+            &mut qualify,
+        ));
     }
 
     // Calibration checks, bracketing the samples of their analyte and method
