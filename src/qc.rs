@@ -579,7 +579,7 @@ pub fn evaluate(
         let c = config.for_method(&rows[p].method);
         let Some((kind, value, win, pass)) = precision(a, b, loq, rows[p].unit, c) else {
             return Err(EvalError::Overflow {
-                at: Loc::new(&rows[p].lab_id, rows[p].line, "reading"),
+                at: Loc::new(results_file, rows[p].line, "reading"),
             });
         };
         checks.push(on_parent(
