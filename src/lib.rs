@@ -6,6 +6,7 @@
 
 pub mod classify;
 pub mod error;
+pub mod evaluated;
 pub mod fasthash;
 pub mod issue;
 pub mod layout;

@@ -3,11 +3,11 @@
 //! client results, and says what holds the batch.
 
 use crate::classify::State;
+use crate::evaluated::{EvalError, ReportRow};
 use crate::numeric::{plain, round_sig};
 use crate::problem::{Problem, ProblemKind};
-use crate::read::qc_config::Criteria;
+use crate::read::qc_config::{Criteria, QcConfig};
 use crate::read::{InForce, Kind, Loc, ReadError, ResultRow, Workspace};
-use crate::report::{EvalError, ReportRow};
 use crate::resolve::{self, Resolution};
 use crate::units::{Dimension, Unit, convert};
 use rust_decimal::Decimal;
@@ -270,32 +270,21 @@ pub struct QcResult {
     pub problems: Vec<Problem>,
 }
 
-pub fn evaluate(
-    ws: &Workspace,
-    results_file: &str,
-    qc_rows: &[ResultRow],
-    rows: &mut [ReportRow],
-) -> Result<QcResult, EvalError> {
-    let config = &ws.lab.qc;
-    let mut checks: Vec<QcCheck> = Vec::new();
-    let mut problems: Vec<Problem> = Vec::new();
-    let mut qualify: Vec<(usize, &'static str)> = Vec::new();
-    // Only spikes and duplicates look samples up by id.
-    let needs_parents = qc_rows.iter().any(|q| {
-        matches!(
-            q.kind,
-            Kind::MatrixSpike | Kind::MatrixSpikeDup | Kind::Duplicate
-        )
-    });
-    let by_id: HashMap<(&str, String), usize> = if needs_parents {
-        rows.iter()
-            .enumerate()
-            .map(|(i, r)| ((r.lab_id.as_str(), lower(&r.analyte)), i))
-            .collect()
-    } else {
-        HashMap::new()
-    };
-    let parent_of = |q: &ResultRow| -> Result<usize, EvalError> {
+/// What every check family reads: the workspace, the QC rows and the
+/// classified client results (not yet qualified).
+struct Batch<'a> {
+    ws: &'a Workspace,
+    config: &'a QcConfig,
+    results_file: &'a str,
+    qc_rows: &'a [ResultRow],
+    rows: &'a [ReportRow],
+    /// Sample index by (lab id, lower-case analyte); built only when a spike
+    /// or duplicate needs its parent.
+    by_id: HashMap<(&'a str, String), usize>,
+}
+
+impl Batch<'_> {
+    fn parent_of(&self, q: &ResultRow) -> Result<usize, EvalError> {
         let Some(pid) = &q.parent_id else {
             return Err(EvalError::Read(ReadError::field(
                 q.loc("parent_id"),
@@ -306,7 +295,7 @@ pub fn evaluate(
                 "give the lab id of the parent sample",
             )));
         };
-        by_id
+        self.by_id
             .get(&(pid.as_str(), lower(&q.analyte)))
             .copied()
             .ok_or_else(|| {
@@ -316,8 +305,19 @@ pub fn evaluate(
                     "the parent must be a sample row of the same analyte in this results file",
                 ))
             })
-    };
-    let no_limits = |q: &ResultRow| Problem {
+    }
+}
+
+/// What the check families find; qualifiers are applied once all have run.
+#[derive(Default)]
+struct Found {
+    checks: Vec<QcCheck>,
+    problems: Vec<Problem>,
+    qualify: Vec<(usize, &'static str)>,
+}
+
+fn no_limits(q: &ResultRow) -> Problem {
+    Problem {
         at: q.loc("analyte"),
         lab_id: q.lab_id.clone(),
         analyte: q.analyte.clone(),
@@ -330,48 +330,113 @@ pub fn evaluate(
             q.method
         ),
         hint: "add the register row, or correct the QC row's matrix or method".into(),
-    };
+    }
+}
 
-    // Method blanks: associated with samples of the same analyte, method and matrix.
-    for q in qc_rows.iter().filter(|q| q.kind == Kind::MethodBlank) {
-        let c = config.for_method(&q.method);
-        let Some(m) = prepared(ws, q)? else {
-            problems.push(no_limits(q));
+/// Runs every check family over the batch and qualifies the client results.
+pub fn evaluate(
+    ws: &Workspace,
+    results_file: &str,
+    qc_rows: &[ResultRow],
+    rows: &mut [ReportRow],
+) -> Result<QcResult, EvalError> {
+    // Only spikes and duplicates look samples up by id.
+    let needs_parents = qc_rows.iter().any(|q| {
+        matches!(
+            q.kind,
+            Kind::MatrixSpike | Kind::MatrixSpikeDup | Kind::Duplicate
+        )
+    });
+    let by_id = if needs_parents {
+        rows.iter()
+            .enumerate()
+            .map(|(i, r)| ((r.lab_id.as_str(), lower(&r.analyte)), i))
+            .collect()
+    } else {
+        HashMap::new()
+    };
+    let b = Batch {
+        ws,
+        config: &ws.lab.qc,
+        results_file,
+        qc_rows,
+        rows,
+        by_id,
+    };
+    let mut out = Found::default();
+    method_blanks(&b, &mut out)?;
+    lcs(&b, &mut out)?;
+    let spiked = matrix_spikes(&b, &mut out)?;
+    spike_pairs(&b, &mut out, spiked)?;
+    duplicates(&b, &mut out)?;
+    calibration(&b, &mut out)?;
+    required(&b, &mut out)?;
+    let Found {
+        checks,
+        problems,
+        qualify,
+    } = out;
+    for (i, q) in qualify {
+        let quals = &mut rows[i].qualifiers;
+        if !quals.iter().any(|x| x == q) {
+            quals.push(q.to_string());
+        }
+    }
+    Ok(QcResult { checks, problems })
+}
+
+/// The method blank's threshold and its window text: the highest of the
+/// MDL, a percentage of the lowest limit and a percentage of the lowest
+/// detected result governs. None on overflow.
+fn blank_threshold(
+    m: &Measured,
+    lowest_limit: Option<Decimal>,
+    lowest_result: Option<Decimal>,
+    c: &Criteria,
+) -> Option<(Decimal, String)> {
+    let mut threshold = m.mdl;
+    let mut basis = "(MDL)".to_string();
+    for (base, pct, name) in [
+        (lowest_limit, c.blank_limit_pct, "of the limit"),
+        (lowest_result, c.blank_sample_pct, "of the lowest result"),
+    ] {
+        let Some(base) = base else { continue };
+        let t = base.checked_mul(pct)?.checked_div(Decimal::ONE_HUNDRED)?;
+        if t > threshold {
+            threshold = t;
+            basis = format!("({} % {name})", plain(pct));
+        }
+    }
+    let window = format!("< {} {} {basis}", round_sig(threshold, 3), m.unit);
+    Some((threshold, window))
+}
+
+/// Method blanks: associated with samples of the same analyte, method and matrix.
+fn method_blanks(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
+    for q in b.qc_rows.iter().filter(|q| q.kind == Kind::MethodBlank) {
+        let c = b.config.for_method(&q.method);
+        let Some(m) = prepared(b.ws, q)? else {
+            out.problems.push(no_limits(q));
             continue;
         };
-        let assoc: Vec<usize> = rows
+        let assoc: Vec<usize> = b
+            .rows
             .iter()
             .enumerate()
             .filter(|(_, r)| in_group(r, &q.analyte, &q.method) && same(&r.matrix, &q.matrix))
             .map(|(i, _)| i)
             .collect();
-        if let Some(&i) = assoc.iter().find(|&&i| rows[i].unit != m.unit) {
-            return Err(unit_clash(q, m.unit, rows[i].unit));
+        if let Some(&i) = assoc.iter().find(|&&i| b.rows[i].unit != m.unit) {
+            return Err(unit_clash(q, m.unit, b.rows[i].unit));
         }
-        let hundred = Decimal::ONE_HUNDRED;
-        let lowest_limit = assoc.iter().filter_map(|&i| rows[i].spec_limit).min();
+        let lowest_limit = assoc.iter().filter_map(|&i| b.rows[i].spec_limit).min();
         let lowest_result = assoc
             .iter()
-            .filter(|&&i| matches!(rows[i].state, State::DetectedBelowLoq | State::Quantified))
-            .map(|&i| rows[i].value_unrounded)
+            .filter(|&&i| matches!(b.rows[i].state, State::DetectedBelowLoq | State::Quantified))
+            .map(|&i| b.rows[i].value_unrounded)
             .min();
-        // The highest of the MDL and the two percentages governs.
-        let mut threshold = m.mdl;
-        let mut basis = "MDL";
-        for (base, pct, name) in [
-            (lowest_limit, c.blank_limit_pct, "of the limit"),
-            (lowest_result, c.blank_sample_pct, "of the lowest result"),
-        ] {
-            let Some(base) = base else { continue };
-            let t = base
-                .checked_mul(pct)
-                .and_then(|x| x.checked_div(hundred))
-                .ok_or_else(|| overflow(q))?;
-            if t > threshold {
-                threshold = t;
-                basis = name;
-            }
-        }
+        let (threshold, window) =
+            blank_threshold(&m, lowest_limit, lowest_result, c).ok_or_else(|| overflow(q))?;
         let pass = m.value < threshold;
         let mut affected = Vec::new();
         if !pass {
@@ -380,31 +445,16 @@ pub fn evaluate(
                 .checked_mul(c.blank_affects_below_factor)
                 .ok_or_else(|| overflow(q))?;
             for &i in &assoc {
-                let r = &rows[i];
+                let r = &b.rows[i];
                 if matches!(r.state, State::DetectedBelowLoq | State::Quantified)
                     && r.value_unrounded < ceiling
                 {
                     affected.push(i);
-                    qualify.push((i, BLANK_AFFECTED));
+                    out.qualify.push((i, BLANK_AFFECTED));
                 }
             }
         }
-        let window = match basis {
-            "MDL" => format!("< {} {} (MDL)", round_sig(threshold, 3), m.unit),
-            "of the limit" => format!(
-                "< {} {} ({} % of the limit)",
-                round_sig(threshold, 3),
-                m.unit,
-                plain(c.blank_limit_pct)
-            ),
-            _ => format!(
-                "< {} {} ({} % of the lowest result)",
-                round_sig(threshold, 3),
-                m.unit,
-                plain(c.blank_sample_pct)
-            ),
-        };
-        checks.push(QcCheck {
+        out.checks.push(QcCheck {
             check: "method blank",
             analyte: q.analyte.clone(),
             method: q.method.clone(),
@@ -415,13 +465,16 @@ pub fn evaluate(
             note: if pass {
                 String::new()
             } else if affected.is_empty() {
-                "no result below 10 × the blank".into()
+                format!(
+                    "no result below {} × the blank",
+                    plain(c.blank_affects_below_factor)
+                )
             } else {
                 format!(
                     "{BLANK_AFFECTED}: {}",
                     affected
                         .iter()
-                        .map(|&i| rows[i].lab_id.as_str())
+                        .map(|&i| b.rows[i].lab_id.as_str())
                         .collect::<Vec<_>>()
                         .join(", ")
                 )
@@ -431,12 +484,16 @@ pub fn evaluate(
         });
     }
 
-    // LCS: a failed recovery holds every result of that analyte and method.
-    for q in qc_rows.iter().filter(|q| q.kind == Kind::Lcs) {
-        let c = config.for_method(&q.method);
+    Ok(())
+}
+
+/// LCS: a failed recovery holds every result of that analyte and method.
+fn lcs(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
+    for q in b.qc_rows.iter().filter(|q| q.kind == Kind::Lcs) {
+        let c = b.config.for_method(&q.method);
         let spike = required_spike(q)?;
-        let Some(m) = prepared(ws, q)? else {
-            problems.push(no_limits(q));
+        let Some(m) = prepared(b.ws, q)? else {
+            out.problems.push(no_limits(q));
             continue;
         };
         let recovery = m
@@ -448,14 +505,15 @@ pub fn evaluate(
         let affected: Vec<usize> = if pass {
             Vec::new()
         } else {
-            rows.iter()
+            b.rows
+                .iter()
                 .enumerate()
                 .filter(|(_, r)| in_group(r, &q.analyte, &q.method))
                 .map(|(i, _)| i)
                 .collect()
         };
         if !pass {
-            problems.push(Problem {
+            out.problems.push(Problem {
                 at: q.loc("reading"),
                 lab_id: q.lab_id.clone(),
                 analyte: q.analyte.clone(),
@@ -471,7 +529,7 @@ pub fn evaluate(
                 hint: "re-prepare and re-analyse the batch for this analyte, or issue with --accept-qc \"REASON\"".into(),
             });
         }
-        checks.push(QcCheck {
+        out.checks.push(QcCheck {
             check: "LCS recovery",
             analyte: q.analyte.clone(),
             method: q.method.clone(),
@@ -489,31 +547,40 @@ pub fn evaluate(
         });
     }
 
-    // Matrix spikes and spike duplicates.
+    Ok(())
+}
+
+/// Matrix spikes and spike duplicates, each against its parent; gathers
+/// the pairs for the precision check.
+fn matrix_spikes(
+    b: &Batch<'_>,
+    out: &mut Found,
+) -> Result<HashMap<(String, String), SpikePair>, EvalError> {
     let mut spiked: HashMap<(String, String), SpikePair> = HashMap::new();
-    for q in qc_rows
+    for q in b
+        .qc_rows
         .iter()
         .filter(|q| matches!(q.kind, Kind::MatrixSpike | Kind::MatrixSpikeDup))
     {
-        let c = config.for_method(&q.method);
+        let c = b.config.for_method(&q.method);
         let spike = required_spike(q)?;
-        let p = parent_of(q)?;
-        let Some(m) = prepared(ws, q)? else {
-            problems.push(no_limits(q));
+        let p = b.parent_of(q)?;
+        let Some(m) = prepared(b.ws, q)? else {
+            out.problems.push(no_limits(q));
             continue;
         };
-        if m.unit != rows[p].unit {
-            return Err(unit_clash(q, m.unit, rows[p].unit));
+        if m.unit != b.rows[p].unit {
+            return Err(unit_clash(q, m.unit, b.rows[p].unit));
         }
-        let parent = rows[p].value_unrounded;
+        let parent = b.rows[p].value_unrounded;
         let name = if q.kind == Kind::MatrixSpike {
             "matrix spike recovery"
         } else {
             "spike duplicate recovery"
         };
-        let rows_text = format!("{} on {}", q.lab_id, rows[p].lab_id);
+        let rows_text = format!("{} on {}", q.lab_id, b.rows[p].lab_id);
         let entry = spiked
-            .entry((rows[p].lab_id.clone(), lower(&q.analyte)))
+            .entry((b.rows[p].lab_id.clone(), lower(&q.analyte)))
             .or_insert_with(|| SpikePair {
                 loq: m.loq,
                 ..Default::default()
@@ -527,7 +594,7 @@ pub fn evaluate(
             .checked_mul(c.spike_parent_max_factor)
             .ok_or_else(|| overflow(q))?;
         if parent > limit {
-            checks.push(QcCheck {
+            out.checks.push(QcCheck {
                 check: name,
                 analyte: q.analyte.clone(),
                 method: q.method.clone(),
@@ -552,7 +619,7 @@ pub fn evaluate(
             .and_then(|x| x.checked_div(spike))
             .ok_or_else(|| overflow(q))?;
         let pass = within(recovery, c.spike_recovery_pct);
-        checks.push(on_parent(
+        out.checks.push(on_parent(
             ParentCheck {
                 check: name,
                 analyte: &q.analyte,
@@ -564,33 +631,42 @@ pub fn evaluate(
                 qualifier: MATRIX_EFFECT,
             },
             p,
-            &rows[p].lab_id,
-            &mut qualify,
+            &b.rows[p].lab_id,
+            &mut out.qualify,
         ));
     }
+    Ok(spiked)
+}
+
+/// Precision between a matrix spike and its duplicate on one parent.
+fn spike_pairs(
+    b: &Batch<'_>,
+    out: &mut Found,
+    spiked: HashMap<(String, String), SpikePair>,
+) -> Result<(), EvalError> {
     let mut pairs: Vec<_> = spiked.into_iter().collect();
-    pairs.sort_by(|a, b| a.0.cmp(&b.0));
+    pairs.sort_by(|x, y| x.0.cmp(&y.0));
     for ((parent_id, analyte), pair) in pairs {
-        let (Some((a, ms_id)), Some((b, msd_id))) = (pair.ms, pair.msd) else {
+        let (Some((ms, ms_id)), Some((msd, msd_id))) = (pair.ms, pair.msd) else {
             continue;
         };
         let loq = pair.loq;
-        let p = by_id[&(parent_id.as_str(), analyte.clone())];
-        let c = config.for_method(&rows[p].method);
-        let Some((kind, value, win, pass)) = precision(a, b, loq, rows[p].unit, c) else {
+        let p = b.by_id[&(parent_id.as_str(), analyte.clone())];
+        let c = b.config.for_method(&b.rows[p].method);
+        let Some((kind, value, win, pass)) = precision(ms, msd, loq, b.rows[p].unit, c) else {
             return Err(EvalError::Overflow {
-                at: Loc::new(results_file, rows[p].line, "reading"),
+                at: Loc::new(b.results_file, b.rows[p].line, "reading"),
             });
         };
-        checks.push(on_parent(
+        out.checks.push(on_parent(
             ParentCheck {
                 check: if kind == "RPD" {
                     "spike duplicate RPD"
                 } else {
                     "spike duplicate difference"
                 },
-                analyte: &rows[p].analyte,
-                method: &rows[p].method,
+                analyte: &b.rows[p].analyte,
+                method: &b.rows[p].method,
                 rows: format!("{ms_id} / {msd_id}"),
                 value,
                 window: win,
@@ -598,23 +674,27 @@ pub fn evaluate(
                 qualifier: IMPRECISE,
             },
             p,
-            &rows[p].lab_id,
-            &mut qualify,
+            &b.rows[p].lab_id,
+            &mut out.qualify,
         ));
     }
 
-    // Laboratory duplicates.
-    for q in qc_rows.iter().filter(|q| q.kind == Kind::Duplicate) {
-        let c = config.for_method(&q.method);
-        let p = parent_of(q)?;
-        let Some(m) = prepared(ws, q)? else {
-            problems.push(no_limits(q));
+    Ok(())
+}
+
+/// Laboratory duplicates against their parents.
+fn duplicates(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
+    for q in b.qc_rows.iter().filter(|q| q.kind == Kind::Duplicate) {
+        let c = b.config.for_method(&q.method);
+        let p = b.parent_of(q)?;
+        let Some(m) = prepared(b.ws, q)? else {
+            out.problems.push(no_limits(q));
             continue;
         };
-        if m.unit != rows[p].unit {
-            return Err(unit_clash(q, m.unit, rows[p].unit));
+        if m.unit != b.rows[p].unit {
+            return Err(unit_clash(q, m.unit, b.rows[p].unit));
         }
-        let parent = &rows[p];
+        let parent = &b.rows[p];
         let (kind, value, win, pass) = precision(
             parent.value_unrounded,
             m.value,
@@ -623,7 +703,7 @@ pub fn evaluate(
             c,
         )
         .ok_or_else(|| overflow(q))?;
-        checks.push(on_parent(
+        out.checks.push(on_parent(
             ParentCheck {
                 check: if kind == "RPD" {
                     "duplicate RPD"
@@ -640,98 +720,41 @@ pub fn evaluate(
             },
             p,
             &parent.lab_id,
-            &mut qualify,
+            &mut out.qualify,
         ));
     }
 
-    // Calibration checks, bracketing the samples of their analyte and method
-    // in run order (analysis date, then file order).
+    Ok(())
+}
+
+/// Calibration checks, bracketing the samples of their analyte and method
+/// in run order (analysis date, then file order): a failed check holds the
+/// results run since the last passing check of its kind, up to the next.
+fn calibration(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
     let mut cal: Vec<(&ResultRow, bool, QcCheck)> = Vec::new();
-    for q in qc_rows
+    for q in b
+        .qc_rows
         .iter()
         .filter(|q| matches!(q.kind, Kind::Ccv | Kind::Ccb))
     {
-        let c = config.for_method(&q.method);
-        let Some(m) = reading_level(ws, q)? else {
-            problems.push(no_limits(q));
-            continue;
-        };
-        let (check, value, win, pass) = if q.kind == Kind::Ccv {
-            let truth = required_spike(q)?;
-            let recovery = m
-                .value
-                .checked_mul(Decimal::ONE_HUNDRED)
-                .and_then(|x| x.checked_div(truth))
-                .ok_or_else(|| overflow(q))?;
-            (
-                "CCV recovery",
-                pct(recovery),
-                window(c.ccv_recovery_pct),
-                within(recovery, c.ccv_recovery_pct),
-            )
-        } else {
-            (
-                "CCB",
-                format!("{} {}", round_sig(m.value, 3), m.unit),
-                format!("< LOQ {} {}", round_sig(m.loq, 3), m.unit),
-                m.value < m.loq,
-            )
-        };
-        cal.push((
-            q,
-            pass,
-            QcCheck {
-                check,
-                analyte: q.analyte.clone(),
-                method: q.method.clone(),
-                rows: q.lab_id.clone(),
-                value,
-                window: win,
-                outcome: if pass { Outcome::Pass } else { Outcome::Fail },
-                note: String::new(),
-                blocking: false,
-                affected: Vec::new(),
-            },
-        ));
+        match calibration_check(b, q)? {
+            Some((pass, check)) => cal.push((q, pass, check)),
+            None => out.problems.push(no_limits(q)),
+        }
     }
     cal.sort_by_key(|(q, _, _)| (q.analyzed_on, q.line));
     for f in 0..cal.len() {
         if cal[f].1 {
             continue;
         }
-        let (fa, fm) = (cal[f].0.analyte.clone(), cal[f].0.method.clone());
-        let peers: Vec<usize> = (0..cal.len())
-            .filter(|&j| same(&cal[j].0.analyte, &fa) && same(&cal[j].0.method, &fm))
-            .collect();
-        let at = |j: usize| (cal[j].0.analyzed_on, cal[j].0.line);
-        let before = peers
-            .iter()
-            .rev()
-            .copied()
-            .find(|&j| at(j) < at(f) && cal[j].1)
-            .map(at);
-        let after = peers
-            .iter()
-            .copied()
-            .find(|&j| at(j) > at(f) && cal[j].1)
-            .map(at);
-        let held: Vec<usize> = rows
-            .iter()
-            .enumerate()
-            .filter(|(_, r)| in_group(r, &fa, &fm))
-            .filter(|(_, r)| {
-                let t = (r.analyzed_on, r.line);
-                before.is_none_or(|b| t > b) && after.is_none_or(|a| t < a)
-            })
-            .map(|(i, _)| i)
-            .collect();
+        let held = bracketed(b, &cal, f);
         let q = cal[f].0;
         let ids = held
             .iter()
-            .map(|&i| rows[i].lab_id.as_str())
+            .map(|&i| b.rows[i].lab_id.as_str())
             .collect::<Vec<_>>()
             .join(", ");
-        problems.push(Problem {
+        out.problems.push(Problem {
             at: q.loc("reading"),
             lab_id: q.lab_id.clone(),
             analyte: q.analyte.clone(),
@@ -754,36 +777,109 @@ pub fn evaluate(
         };
         check.affected = held;
     }
-    checks.extend(cal.into_iter().map(|(_, _, c)| c));
+    out.checks.extend(cal.into_iter().map(|(_, _, c)| c));
+    Ok(())
+}
 
-    // Required QC kinds per analyte and method present among the samples.
+/// One CCV or CCB judged at reading level; None when no limits are in force.
+fn calibration_check(b: &Batch<'_>, q: &ResultRow) -> Result<Option<(bool, QcCheck)>, EvalError> {
+    let c = b.config.for_method(&q.method);
+    let Some(m) = reading_level(b.ws, q)? else {
+        return Ok(None);
+    };
+    let (check, value, win, pass) = if q.kind == Kind::Ccv {
+        let truth = required_spike(q)?;
+        let recovery = m
+            .value
+            .checked_mul(Decimal::ONE_HUNDRED)
+            .and_then(|x| x.checked_div(truth))
+            .ok_or_else(|| overflow(q))?;
+        (
+            "CCV recovery",
+            pct(recovery),
+            window(c.ccv_recovery_pct),
+            within(recovery, c.ccv_recovery_pct),
+        )
+    } else {
+        (
+            "CCB",
+            format!("{} {}", round_sig(m.value, 3), m.unit),
+            format!("< LOQ {} {}", round_sig(m.loq, 3), m.unit),
+            m.value < m.loq,
+        )
+    };
+    Ok(Some((
+        pass,
+        QcCheck {
+            check,
+            analyte: q.analyte.clone(),
+            method: q.method.clone(),
+            rows: q.lab_id.clone(),
+            value,
+            window: win,
+            outcome: if pass { Outcome::Pass } else { Outcome::Fail },
+            note: String::new(),
+            blocking: false,
+            affected: Vec::new(),
+        },
+    )))
+}
+
+/// The sample results a failed calibration check `f` holds: those of its
+/// analyte and method run after the last passing check before it and before
+/// the first passing check after it. `cal` is in run order.
+fn bracketed(b: &Batch<'_>, cal: &[(&ResultRow, bool, QcCheck)], f: usize) -> Vec<usize> {
+    let (fa, fm) = (&cal[f].0.analyte, &cal[f].0.method);
+    let at = |j: usize| (cal[j].0.analyzed_on, cal[j].0.line);
+    let peer = |j: usize| cal[j].1 && same(&cal[j].0.analyte, fa) && same(&cal[j].0.method, fm);
+    let before = (0..cal.len())
+        .rev()
+        .find(|&j| at(j) < at(f) && peer(j))
+        .map(at);
+    let after = (0..cal.len()).find(|&j| at(j) > at(f) && peer(j)).map(at);
+    b.rows
+        .iter()
+        .enumerate()
+        .filter(|(_, r)| in_group(r, fa, fm))
+        .filter(|(_, r)| {
+            let t = (r.analyzed_on, r.line);
+            before.is_none_or(|x| t > x) && after.is_none_or(|x| t < x)
+        })
+        .map(|(i, _)| i)
+        .collect()
+}
+
+/// Required QC kinds per analyte and method present among the samples.
+fn required(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
     let mut groups: Vec<usize> = Vec::new();
-    for (i, r) in rows.iter().enumerate() {
+    for (i, r) in b.rows.iter().enumerate() {
         if !groups
             .iter()
-            .any(|&g| in_group(r, &rows[g].analyte, &rows[g].method))
+            .any(|&g| in_group(r, &b.rows[g].analyte, &b.rows[g].method))
         {
             groups.push(i);
         }
     }
     for first in groups {
-        let (analyte, method) = (rows[first].analyte.clone(), rows[first].method.clone());
-        for kind in &config.required {
-            let present = qc_rows
+        let (analyte, method) = (b.rows[first].analyte.clone(), b.rows[first].method.clone());
+        for kind in &b.config.required {
+            let present = b
+                .qc_rows
                 .iter()
                 .any(|q| q.kind == *kind && same(&q.analyte, &analyte) && same(&q.method, &method));
             if present {
                 continue;
             }
-            let affected: Vec<usize> = rows
+            let affected: Vec<usize> = b
+                .rows
                 .iter()
                 .enumerate()
                 .filter(|(_, r)| in_group(r, &analyte, &method))
                 .map(|(i, _)| i)
                 .collect();
-            let r = &rows[first];
-            problems.push(Problem {
-                at: Loc::file(results_file),
+            let r = &b.rows[first];
+            out.problems.push(Problem {
+                at: Loc::file(b.results_file),
                 lab_id: r.lab_id.clone(),
                 analyte: r.analyte.clone(),
                 kind: ProblemKind::Qc,
@@ -795,7 +891,7 @@ pub fn evaluate(
                 ),
                 hint: "add the QC row to the results, or issue with --accept-qc \"REASON\"".into(),
             });
-            checks.push(QcCheck {
+            out.checks.push(QcCheck {
                 check: kind.name(),
                 analyte: r.analyte.clone(),
                 method: r.method.clone(),
@@ -810,13 +906,7 @@ pub fn evaluate(
         }
     }
 
-    for (i, q) in qualify {
-        let quals = &mut rows[i].qualifiers;
-        if !quals.iter().any(|x| x == q) {
-            quals.push(q.to_string());
-        }
-    }
-    Ok(QcResult { checks, problems })
+    Ok(())
 }
 
 #[cfg(test)]

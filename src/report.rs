@@ -1,18 +1,17 @@
 //! Phase 4: the report model. Everything a renderer shows is decided here,
 //! as text and decimals; renderers only lay it out.
 
-use crate::classify::{self, Comparison, State, Verdict, VerdictError};
+use crate::classify::{self, Comparison, State, VerdictError};
+pub use crate::evaluated::{EvalError, ReportRow};
 use crate::numeric::round_sig;
 use crate::problem::{Problem, ProblemKind};
 use crate::qc::{QC_EXCEPTION, QcCheck};
 use crate::read::batch::each_result;
 use crate::read::{
-    Batch, Compare, DecisionRule, Kind, Loc, NotDetectedStyle, PageSize, ResultRow, Workspace,
+    Batch, Compare, DecisionRule, Kind, NotDetectedStyle, PageSize, ResultRow, Workspace,
 };
-use crate::resolve::{self, Resolution, ResolveError};
-use crate::units::Unit;
+use crate::resolve::{self, Resolution};
 use chrono::{DateTime, NaiveDate, Utc};
-use rust_decimal::Decimal;
 use std::sync::Arc;
 
 /// What varies between runs, passed in so outputs are reproducible.
@@ -20,31 +19,6 @@ use std::sync::Arc;
 pub struct RunInfo {
     pub issued_at: DateTime<Utc>,
     pub tool_version: String,
-}
-
-#[derive(Debug, thiserror::Error)]
-pub enum EvalError {
-    #[error(transparent)]
-    Read(#[from] crate::read::ReadError),
-    #[error(transparent)]
-    Resolve(#[from] ResolveError),
-    #[error("{at}: the guarded decision rule needs the result's expanded uncertainty")]
-    NoUncertainty { at: Loc },
-    #[error("{at}: arithmetic overflow applying the decision rule")]
-    Overflow { at: Loc },
-}
-
-impl EvalError {
-    pub fn hint(&self) -> String {
-        match self {
-            EvalError::Read(e) => e.hint(),
-            EvalError::Resolve(e) => e.hint(),
-            EvalError::NoUncertainty { .. } => {
-                "give uncertainty_pct (U at k = 2, % of the result) for every quantified result with a limit, or use decision_rule = \"simple\"".into()
-            }
-            EvalError::Overflow { .. } => "check the numbers on this row".into(),
-        }
-    }
 }
 
 #[derive(Debug, Clone)]
@@ -85,40 +59,6 @@ pub struct Replaces {
     pub reason: String,
     /// One line per changed result, in words.
     pub changed: Vec<String>,
-}
-
-/// One client result as the certificate states it.
-#[derive(Debug, Clone, PartialEq)]
-pub struct ReportRow {
-    /// The results file line, for run order and messages.
-    pub line: u64,
-    pub lab_id: String,
-    pub client_id: String,
-    pub description: String,
-    pub analyte: Arc<str>,
-    pub matrix: Arc<str>,
-    pub method: Arc<str>,
-    pub analyzed_on: NaiveDate,
-    /// The text a certificate prints: "< 0.600", "ND", "25.0", "> 2500".
-    pub reported: String,
-    /// The rounded value; None when not detected or over range.
-    pub value: Option<Decimal>,
-    pub value_unrounded: Decimal,
-    pub unit: Unit,
-    pub state: State,
-    pub mdl: Decimal,
-    pub loq: Decimal,
-    pub mdl_unrounded: Decimal,
-    pub loq_unrounded: Decimal,
-    pub dilution: Decimal,
-    pub spec: Option<Arc<str>>,
-    pub spec_limit: Option<Decimal>,
-    pub spec_citation: Arc<str>,
-    pub verdict: Option<Verdict>,
-    pub uncertainty_pct: Option<Decimal>,
-    pub qualifiers: Vec<String>,
-    /// The register row used: study id, else file:line.
-    pub limits_row: Arc<str>,
 }
 
 #[derive(Debug, Clone)]

@@ -254,7 +254,7 @@ impl<'m> Flow<'m> {
         f
     }
 
-    pub fn measure(&self) -> &dyn Measure {
+    pub fn measure(&self) -> &'m dyn Measure {
         self.m
     }
 

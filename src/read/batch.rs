@@ -2,7 +2,8 @@
 
 use super::csvtable::{Col, opt, read_file, read_rows, req};
 use super::error::{Loc, ReadError};
-use super::lab::DecisionRule;
+use super::vocab::DecisionRule;
+use super::vocab::Kind;
 use crate::units::{Dimension, Unit};
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
@@ -10,51 +11,6 @@ use serde::Deserialize;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
-
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum Kind {
-    Sample,
-    MethodBlank,
-    Lcs,
-    MatrixSpike,
-    MatrixSpikeDup,
-    Duplicate,
-    Ccv,
-    Ccb,
-}
-
-impl Kind {
-    pub const ALL: [Kind; 8] = [
-        Kind::Sample,
-        Kind::MethodBlank,
-        Kind::Lcs,
-        Kind::MatrixSpike,
-        Kind::MatrixSpikeDup,
-        Kind::Duplicate,
-        Kind::Ccv,
-        Kind::Ccb,
-    ];
-
-    pub fn name(self) -> &'static str {
-        match self {
-            Kind::Sample => "sample",
-            Kind::MethodBlank => "method-blank",
-            Kind::Lcs => "lcs",
-            Kind::MatrixSpike => "matrix-spike",
-            Kind::MatrixSpikeDup => "matrix-spike-dup",
-            Kind::Duplicate => "duplicate",
-            Kind::Ccv => "ccv",
-            Kind::Ccb => "ccb",
-        }
-    }
-
-    pub fn parse(text: &str) -> Option<Kind> {
-        let t = text.trim();
-        Kind::ALL
-            .into_iter()
-            .find(|k| k.name().eq_ignore_ascii_case(t))
-    }
-}
 
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]

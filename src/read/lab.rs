@@ -1,26 +1,9 @@
 //! lab.toml: who the lab is and how it reports.
 
 use super::error::ReadError;
+use super::vocab::DecisionRule;
 use serde::Deserialize;
 use std::collections::BTreeMap;
-
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum DecisionRule {
-    /// Simple acceptance: the measured value itself against the limit.
-    Simple,
-    /// ILAC-G8:09/2019 guard band with w = U (k = 2).
-    Guarded,
-}
-
-impl DecisionRule {
-    pub fn name(self) -> &'static str {
-        match self {
-            DecisionRule::Simple => "simple",
-            DecisionRule::Guarded => "guarded",
-        }
-    }
-}
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
 #[serde(rename_all = "kebab-case")]

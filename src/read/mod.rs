@@ -9,12 +9,14 @@ pub mod qc_config;
 pub mod register;
 pub mod specs;
 mod toml_util;
+pub mod vocab;
 
-pub use batch::{Batch, Kind, Manifest, ResultRow};
+pub use batch::{Batch, Manifest, ResultRow};
 pub use error::{Loc, ReadError};
-pub use lab::{Compare, DecisionRule, Lab, NotDetectedStyle, PageSize};
+pub use lab::{Compare, Lab, NotDetectedStyle, PageSize};
 pub use register::{InForce, LimitRow, Register};
 pub use specs::{SpecLookup, SpecRow, Specs};
+pub use vocab::{DecisionRule, Kind};
 
 use std::path::{Path, PathBuf};
 

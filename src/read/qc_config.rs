@@ -2,7 +2,7 @@
 //! optional per-method overrides. Every default is common practice for ICP
 //! metals methods; where it is usual is said beside it.
 
-use super::batch::Kind;
+use super::vocab::Kind;
 use rust_decimal::Decimal;
 use serde::Deserialize;
 use std::collections::BTreeMap;

@@ -1,0 +1,70 @@
+//! A client result once classified, as QC qualifies it and the report model
+//! carries it, and the error evaluation raises. Both QC (below the report)
+//! and the report model use these types; this module uses neither.
+
+use crate::classify::{State, Verdict};
+use crate::read::Loc;
+use crate::resolve::ResolveError;
+use crate::units::Unit;
+use chrono::NaiveDate;
+use rust_decimal::Decimal;
+use std::sync::Arc;
+
+#[derive(Debug, thiserror::Error)]
+pub enum EvalError {
+    #[error(transparent)]
+    Read(#[from] crate::read::ReadError),
+    #[error(transparent)]
+    Resolve(#[from] ResolveError),
+    #[error("{at}: the guarded decision rule needs the result's expanded uncertainty")]
+    NoUncertainty { at: Loc },
+    #[error("{at}: arithmetic overflow applying the decision rule")]
+    Overflow { at: Loc },
+}
+
+impl EvalError {
+    pub fn hint(&self) -> String {
+        match self {
+            EvalError::Read(e) => e.hint(),
+            EvalError::Resolve(e) => e.hint(),
+            EvalError::NoUncertainty { .. } => {
+                "give uncertainty_pct (U at k = 2, % of the result) for every quantified result with a limit, or use decision_rule = \"simple\"".into()
+            }
+            EvalError::Overflow { .. } => "check the numbers on this row".into(),
+        }
+    }
+}
+
+/// One client result as the certificate states it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReportRow {
+    /// The results file line, for run order and messages.
+    pub line: u64,
+    pub lab_id: String,
+    pub client_id: String,
+    pub description: String,
+    pub analyte: Arc<str>,
+    pub matrix: Arc<str>,
+    pub method: Arc<str>,
+    pub analyzed_on: NaiveDate,
+    /// The text a certificate prints: "< 0.600", "ND", "25.0", "> 2500".
+    pub reported: String,
+    /// The rounded value; None when not detected or over range.
+    pub value: Option<Decimal>,
+    pub value_unrounded: Decimal,
+    pub unit: Unit,
+    pub state: State,
+    pub mdl: Decimal,
+    pub loq: Decimal,
+    pub mdl_unrounded: Decimal,
+    pub loq_unrounded: Decimal,
+    pub dilution: Decimal,
+    pub spec: Option<Arc<str>>,
+    pub spec_limit: Option<Decimal>,
+    pub spec_citation: Arc<str>,
+    pub verdict: Option<Verdict>,
+    pub uncertainty_pct: Option<Decimal>,
+    pub qualifiers: Vec<String>,
+    /// The register row used: study id, else file:line.
+    pub limits_row: Arc<str>,
+}
