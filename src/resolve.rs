@@ -190,7 +190,33 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
     let loq = limit_to_sample(row, limits, limits.loq)
         .ok_or_else(|| overflow(row, "the sample LOQ"))?
         .ok_or_else(|| unit_mismatch(row, limits, "the LOQ"))?;
-    let (upper, over_range) = match limits.upper_range {
+    let (upper, over_range) = upper_range(row, limits)?;
+    let spec = match &row.spec {
+        None => None,
+        Some(name) => match spec_in_force(row, ws, name, unit)? {
+            Ok(spec) => Some(spec),
+            Err(problem) => return Ok(Resolution::Blocked(problem)),
+        },
+    };
+    Ok(Resolution::Resolved(Resolved {
+        limits,
+        unit,
+        value,
+        mdl,
+        loq,
+        upper,
+        over_range,
+        spec,
+    }))
+}
+
+/// The calibrated upper range in the sample's terms, and whether the
+/// reading lies above it.
+fn upper_range(
+    row: &ResultRow,
+    limits: &LimitRow,
+) -> Result<(Option<Decimal>, bool), ResolveError> {
+    Ok(match limits.upper_range {
         None => (None, false),
         Some((upper, upper_unit)) => {
             let upper_at_reading =
@@ -210,66 +236,59 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
                 .ok_or_else(|| unit_mismatch(row, limits, "the upper range"))?;
             (Some(in_sample), row.reading > upper_at_reading)
         }
-    };
-    let spec = match &row.spec {
-        None => None,
-        Some(name) => match ws
-            .specs
-            .in_force(name, &row.analyte, &row.matrix, row.analyzed_on)
-        {
-            SpecLookup::Row(spec_row) => {
-                let limit = convert(spec_row.limit, spec_row.unit, unit).ok_or_else(|| {
-                    ResolveError::Units {
-                        at: Loc::new(&spec_row.file, spec_row.line, "unit"),
-                        problem: format!(
-                            "spec {} is in {}, but {} is reported in {unit}",
-                            spec_row.spec, spec_row.unit, row.lab_id
-                        ),
-                        hint: "a limit for a solid is a mass fraction (mg/kg, %); for a liquid, a concentration (µg/L, mg/L)".into(),
-                    }
-                })?;
-                Some(ResolvedSpec {
-                    row: spec_row,
-                    limit,
-                })
-            }
-            other => {
-                let message = match other {
-                    SpecLookup::UnknownSpec => {
-                        format!("spec `{name}` is not in {}", ws.specs.file)
-                    }
-                    SpecLookup::NotYet(first) => format!(
-                        "spec `{name}` sets no limit for {} in force on {} (its first is from {first})",
-                        row.analyte, row.analyzed_on
+    })
+}
+
+/// The spec limit in force for the row, in the result's unit; a problem
+/// (not an error) when the spec sets none.
+fn spec_in_force<'w>(
+    row: &ResultRow,
+    ws: &'w Workspace,
+    name: &str,
+    unit: Unit,
+) -> Result<Result<ResolvedSpec<'w>, Problem>, ResolveError> {
+    let lookup = ws
+        .specs
+        .in_force(name, &row.analyte, &row.matrix, row.analyzed_on);
+    let message = match lookup {
+        SpecLookup::Row(spec_row) => {
+            let limit = convert(spec_row.limit, spec_row.unit, unit).ok_or_else(|| {
+                ResolveError::Units {
+                    at: Loc::new(&spec_row.file, spec_row.line, "unit"),
+                    problem: format!(
+                        "spec {} is in {}, but {} is reported in {unit}",
+                        spec_row.spec, spec_row.unit, row.lab_id
                     ),
-                    _ => format!(
-                        "spec `{name}` sets no limit for {} in {}",
-                        row.analyte, row.matrix
-                    ),
-                };
-                return Ok(Resolution::Blocked(Problem {
-                    at: row.loc("spec"),
-                    lab_id: row.lab_id.clone(),
-                    analyte: row.analyte.clone(),
-                    kind: ProblemKind::MissingSpec,
-                    message,
-                    hint: "correct the spec id, or add the limit to specs.csv with its citation"
-                        .into(),
-                }));
-            }
-        },
+                    hint: SPEC_UNIT_HINT.into(),
+                }
+            })?;
+            return Ok(Ok(ResolvedSpec {
+                row: spec_row,
+                limit,
+            }));
+        }
+        SpecLookup::UnknownSpec => format!("spec `{name}` is not in {}", ws.specs.file),
+        SpecLookup::NotYet(first) => format!(
+            "spec `{name}` sets no limit for {} in force on {} (its first is from {first})",
+            row.analyte, row.analyzed_on
+        ),
+        _ => format!(
+            "spec `{name}` sets no limit for {} in {}",
+            row.analyte, row.matrix
+        ),
     };
-    Ok(Resolution::Resolved(Resolved {
-        limits,
-        unit,
-        value,
-        mdl,
-        loq,
-        upper,
-        over_range,
-        spec,
+    Ok(Err(Problem {
+        at: row.loc("spec"),
+        lab_id: row.lab_id.clone(),
+        analyte: row.analyte.clone(),
+        kind: ProblemKind::MissingSpec,
+        message,
+        hint: "correct the spec id, or add the limit to specs.csv with its citation".into(),
     }))
 }
+
+const SPEC_UNIT_HINT: &str =
+    "a limit for a solid is a mass fraction (mg/kg, %); for a liquid, a concentration (µg/L, mg/L)";
 
 #[cfg(test)]
 mod tests {

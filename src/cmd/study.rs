@@ -93,38 +93,10 @@ fn workspace(explicit: Option<&Path>, near: &Path) -> Result<Option<Workspace>, 
 
 pub fn run(a: Args) -> Result<i32, Error> {
     if let Some(cal) = &a.calibration {
-        let sigma = match a.sigma {
-            SigmaArg::Residual => calibration::Sigma::Residual,
-            SigmaArg::Intercept => calibration::Sigma::Intercept,
-        };
-        let r = calibration::compute(&cal.display().to_string(), &read_file(cal)?, sigma)?;
-        print!("{}", out::calibration_text(&r));
-        return Ok(EXIT_OK);
+        return calibration_run(&a, cal);
     }
     if let Some(trace) = &a.baseline {
-        let window = a.window.as_deref().ok_or_else(|| {
-            usage(
-                "--baseline needs --window A:B",
-                "give the x range of baseline without peaks",
-            )
-        })?;
-        let window =
-            study::baseline::parse_range(window).map_err(|m| usage(m, "write the range as A:B"))?;
-        let peak = match &a.peak {
-            Some(p) => Some(
-                study::baseline::parse_range(p).map_err(|m| usage(m, "write the range as C:D"))?,
-            ),
-            None => None,
-        };
-        let r = study::baseline::compute(
-            &trace.display().to_string(),
-            &read_file(trace)?,
-            window,
-            peak,
-            a.slope,
-        )?;
-        print!("{}", out::noise_text(&r));
-        return Ok(EXIT_OK);
+        return baseline_run(&a, trace);
     }
     let path = a.study.as_ref().ok_or_else(|| {
         usage(
@@ -132,6 +104,103 @@ pub fn run(a: Args) -> Result<i32, Error> {
             "limen study STUDY.csv (or --calibration FILE, or --baseline FILE)",
         )
     })?;
+    let opts = options(&a)?;
+    let file = path.display().to_string();
+    let groups = study::groups(&file, study::parse_study(&file, &read_file(path)?)?)?;
+    for (id, _) in &opts.exclusions {
+        if !groups
+            .iter()
+            .any(|g| g.rows.iter().any(|r| &r.lab_id == id))
+        {
+            return Err(usage(
+                format!("--exclude {id}: no such lab id in {file}"),
+                "check the lab id",
+            ));
+        }
+    }
+    if a.verify {
+        return verify_run(&a, path, &groups, &opts);
+    }
+
+    let results: Vec<mdl::MdlResult> = groups.iter().map(|g| mdl::compute(g, &opts)).collect();
+    println!("MDL study {file} (40 CFR Part 136 Appendix B, Revision 2)\n");
+    for r in &results {
+        println!("{}", out::mdl_text(r));
+    }
+    if results.iter().any(|r| !r.ok()) {
+        eprintln!("error: at least one group has no result; nothing was written");
+        eprintln!(
+            "hint: add replicates until each group has at least 7 spikes and 7 blanks, then run again"
+        );
+        return Ok(EXIT_BLOCKED);
+    }
+    // Validate the register request before writing anything.
+    let update = register_request(&a, &results)?;
+    if let Some(pdf_path) = &a.pdf {
+        let lab = workspace(a.workspace.as_deref(), path)?
+            .map(|w| w.lab.name)
+            .unwrap_or_default();
+        let run = super::run_info()?;
+        let bytes = limen::render::study_pdf::record(
+            &results,
+            &groups,
+            &file,
+            &lab,
+            run.issued_at.timestamp(),
+            &run.tool_version,
+        )?;
+        write_new_at(pdf_path, &bytes)?;
+    }
+    if let Some(csv_path) = &a.csv {
+        write_new_at(csv_path, &out::mdl_csv(&results))?;
+    }
+    if let Some((reg_path, rows)) = update {
+        register_update::append(&reg_path, &rows)?;
+        println!("appended to {}:", reg_path.display());
+        for r in &rows {
+            println!("  {}", r.describe());
+        }
+    }
+    Ok(EXIT_OK)
+}
+
+fn calibration_run(a: &Args, cal: &Path) -> Result<i32, Error> {
+    let sigma = match a.sigma {
+        SigmaArg::Residual => calibration::Sigma::Residual,
+        SigmaArg::Intercept => calibration::Sigma::Intercept,
+    };
+    let r = calibration::compute(&cal.display().to_string(), &read_file(cal)?, sigma)?;
+    print!("{}", out::calibration_text(&r));
+    Ok(EXIT_OK)
+}
+
+fn baseline_run(a: &Args, trace: &Path) -> Result<i32, Error> {
+    let window = a.window.as_deref().ok_or_else(|| {
+        usage(
+            "--baseline needs --window A:B",
+            "give the x range of baseline without peaks",
+        )
+    })?;
+    let window =
+        study::baseline::parse_range(window).map_err(|m| usage(m, "write the range as A:B"))?;
+    let peak = match &a.peak {
+        Some(p) => {
+            Some(study::baseline::parse_range(p).map_err(|m| usage(m, "write the range as C:D"))?)
+        }
+        None => None,
+    };
+    let r = study::baseline::compute(
+        &trace.display().to_string(),
+        &read_file(trace)?,
+        window,
+        peak,
+        a.slope,
+    )?;
+    print!("{}", out::noise_text(&r));
+    Ok(EXIT_OK)
+}
+
+fn options(a: &Args) -> Result<mdl::Options, Error> {
     if a.exclude.len() != a.reason.len() {
         return Err(usage(
             format!(
@@ -150,7 +219,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             "3 is usual",
         ));
     }
-    let opts = mdl::Options {
+    Ok(mdl::Options {
         loq,
         idl_factor: a.idl_factor,
         exclusions: a
@@ -159,149 +228,101 @@ pub fn run(a: Args) -> Result<i32, Error> {
             .cloned()
             .zip(a.reason.iter().cloned())
             .collect(),
-    };
-    let file = path.display().to_string();
-    let groups = study::groups(&file, study::parse_study(&file, &read_file(path)?)?)?;
-    for (id, _) in &opts.exclusions {
-        if !groups
-            .iter()
-            .any(|g| g.rows.iter().any(|r| &r.lab_id == id))
-        {
-            return Err(usage(
-                format!("--exclude {id}: no such lab id in {file}"),
-                "check the lab id",
-            ));
-        }
-    }
+    })
+}
 
-    if a.verify {
-        let register = match &a.register {
-            Some(p) => Register::parse(&p.display().to_string(), &read_file(p)?)?,
-            None => {
-                workspace(a.workspace.as_deref(), path)?
-                    .ok_or_else(|| {
-                        usage(
-                            "no register to verify against",
-                            "pass --register FILE or --workspace DIR",
-                        )
-                    })?
-                    .register
-            }
-        };
-        let mut all_keep = true;
-        for g in &groups {
-            let v = verify::verify(g, &register, &opts);
-            all_keep &= v.keep;
-            println!("{}", out::verify_text(&v));
-        }
-        return Ok(if all_keep { EXIT_OK } else { EXIT_BLOCKED });
-    }
-
-    let results: Vec<mdl::MdlResult> = groups.iter().map(|g| mdl::compute(g, &opts)).collect();
-    println!("MDL study {file} (40 CFR Part 136 Appendix B, Revision 2)\n");
-    for r in &results {
-        println!("{}", out::mdl_text(r));
-    }
-    if results.iter().any(|r| !r.ok()) {
-        eprintln!("error: at least one group has no result; nothing was written");
-        eprintln!(
-            "hint: add replicates until each group has at least 7 spikes and 7 blanks, then run again"
-        );
-        return Ok(EXIT_BLOCKED);
-    }
-    // Validate the register request before writing anything.
-    let update = match &a.register {
+fn verify_run(
+    a: &Args,
+    path: &Path,
+    groups: &[study::Group],
+    opts: &mdl::Options,
+) -> Result<i32, Error> {
+    let register = match &a.register {
+        Some(p) => Register::parse(&p.display().to_string(), &read_file(p)?)?,
         None => {
-            if a.effective.is_some() || a.study_id.is_some() {
-                return Err(usage(
-                    "--effective and --study-id go with --register FILE",
-                    "name the register to append to",
-                ));
-            }
-            None
-        }
-        Some(reg_path) => {
-            let effective = a.effective.as_deref().ok_or_else(|| {
-                usage(
-                    "--register needs --effective DATE",
-                    "the date the new limits take effect",
-                )
-            })?;
-            let effective = parse_date(effective).ok_or_else(|| {
-                usage(
-                    format!("--effective `{effective}` is not a date"),
-                    "write it as 2026-12-01",
-                )
-            })?;
-            let study_id = a
-                .study_id
-                .as_deref()
-                .filter(|s| !s.trim().is_empty())
+            workspace(a.workspace.as_deref(), path)?
                 .ok_or_else(|| {
                     usage(
-                        "--register needs --study-id ID",
-                        "name the study so reports can cite it",
+                        "no register to verify against",
+                        "pass --register FILE or --workspace DIR",
                     )
-                })?;
-            let ws = workspace(a.workspace.as_deref(), reg_path)?.ok_or_else(|| {
-                usage(
-                    "no workspace found for the register's significant figures",
-                    "put the register in a workspace folder or pass --workspace DIR",
-                )
-            })?;
-            let register = Register::parse(&reg_path.display().to_string(), &read_file(reg_path)?)?;
-            let rows = register_update::rows_for(
-                &results,
-                &register,
-                effective,
-                study_id,
-                ws.lab.significant_figures,
-            );
-            Some((reg_path.clone(), rows))
+                })?
+                .register
         }
     };
-    if let Some(pdf_path) = &a.pdf {
-        let lab = workspace(a.workspace.as_deref(), path)?
-            .map(|w| w.lab.name)
-            .unwrap_or_default();
-        let run = super::run_info()?;
-        let bytes = limen::render::study_pdf::record(
-            &results,
-            &groups,
-            &file,
-            &lab,
-            run.issued_at.timestamp(),
-            &run.tool_version,
-        )?;
-        let dir = pdf_path
-            .parent()
-            .filter(|p| !p.as_os_str().is_empty())
-            .unwrap_or(Path::new("."));
-        let name = pdf_path
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_default();
-        limen::output::write_new(dir, &name, &bytes)?;
-        println!("wrote {}", pdf_path.display());
+    let mut all_keep = true;
+    for g in groups {
+        let v = verify::verify(g, &register, opts);
+        all_keep &= v.keep;
+        println!("{}", out::verify_text(&v));
     }
-    if let Some(csv_path) = &a.csv {
-        let dir = csv_path
-            .parent()
-            .filter(|p| !p.as_os_str().is_empty())
-            .unwrap_or(Path::new("."));
-        let name = csv_path
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_default();
-        limen::output::write_new(dir, &name, &out::mdl_csv(&results))?;
-        println!("wrote {}", csv_path.display());
-    }
-    if let Some((reg_path, rows)) = update {
-        register_update::append(&reg_path, &rows)?;
-        println!("appended to {}:", reg_path.display());
-        for r in &rows {
-            println!("  {}", r.describe());
+    Ok(if all_keep { EXIT_OK } else { EXIT_BLOCKED })
+}
+
+/// The register rows a study appends, checked before anything is written.
+fn register_request(
+    a: &Args,
+    results: &[mdl::MdlResult],
+) -> Result<Option<(PathBuf, Vec<register_update::NewRow>)>, Error> {
+    let Some(reg_path) = &a.register else {
+        if a.effective.is_some() || a.study_id.is_some() {
+            return Err(usage(
+                "--effective and --study-id go with --register FILE",
+                "name the register to append to",
+            ));
         }
-    }
-    Ok(EXIT_OK)
+        return Ok(None);
+    };
+    let effective = a.effective.as_deref().ok_or_else(|| {
+        usage(
+            "--register needs --effective DATE",
+            "the date the new limits take effect",
+        )
+    })?;
+    let effective = parse_date(effective).ok_or_else(|| {
+        usage(
+            format!("--effective `{effective}` is not a date"),
+            "write it as 2026-12-01",
+        )
+    })?;
+    let study_id = a
+        .study_id
+        .as_deref()
+        .filter(|s| !s.trim().is_empty())
+        .ok_or_else(|| {
+            usage(
+                "--register needs --study-id ID",
+                "name the study so reports can cite it",
+            )
+        })?;
+    let ws = workspace(a.workspace.as_deref(), reg_path)?.ok_or_else(|| {
+        usage(
+            "no workspace found for the register's significant figures",
+            "put the register in a workspace folder or pass --workspace DIR",
+        )
+    })?;
+    let register = Register::parse(&reg_path.display().to_string(), &read_file(reg_path)?)?;
+    let rows = register_update::rows_for(
+        results,
+        &register,
+        effective,
+        study_id,
+        ws.lab.significant_figures,
+    );
+    Ok(Some((reg_path.clone(), rows)))
+}
+
+/// Writes a new file at `path` (never replacing one) and says so.
+fn write_new_at(path: &Path, bytes: &[u8]) -> Result<(), Error> {
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    limen::output::write_new(dir, &name, bytes)?;
+    println!("wrote {}", path.display());
+    Ok(())
 }

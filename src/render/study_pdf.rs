@@ -3,7 +3,9 @@
 
 use super::RenderError;
 use super::study::g;
-use crate::layout::{Align, Cell, Column, Flow, GREY, Item, LIGHT, Margins, Row, Style, Table};
+use crate::layout::{
+    Align, Cell, Column, Flow, GREY, Item, LIGHT, Margins, Page, Row, Style, Table,
+};
 use crate::study::mdl::MdlResult;
 use crate::study::{Group, StudyKind};
 
@@ -128,73 +130,7 @@ pub fn record(
             0.0,
         );
         flow.space(3.0);
-        let pairs = vec![
-            (
-                "Procedure",
-                "40 CFR Part 136 Appendix B, Revision 2".to_string(),
-            ),
-            (
-                "Spikes",
-                format!(
-                    "n = {}, level(s) {}; mean {}, SD {}, t(n−1, 0.99) = {}",
-                    r.n_spike,
-                    r.spike_levels
-                        .iter()
-                        .map(|l| g(*l))
-                        .collect::<Vec<_>>()
-                        .join(", "),
-                    g(r.mean_spike),
-                    g(r.sd_spike),
-                    if r.t_value.is_finite() {
-                        format!("{:.3}", r.t_value)
-                    } else {
-                        "–".into()
-                    }
-                ),
-            ),
-            ("MDL_S", format!("{} {}", g(r.mdl_s), r.unit)),
-            (
-                "Blanks",
-                format!("n = {}, numeric {}", r.n_blank, r.n_blank_numeric),
-            ),
-            (
-                "MDL_b",
-                format!(
-                    "{} ({})",
-                    r.mdl_b.map(g).unwrap_or_else(|| "–".into()),
-                    r.mdl_b_rule
-                ),
-            ),
-            (
-                "MDL",
-                if r.ok() {
-                    format!("{} {} ({} governs)", g(r.mdl), r.unit, r.governs.name())
-                } else {
-                    "no result".into()
-                },
-            ),
-            (
-                "LOQ",
-                if r.ok() {
-                    format!("{} {} ({})", g(r.loq), r.unit, r.loq_rule.describe())
-                } else {
-                    "no result".into()
-                },
-            ),
-            (
-                "IDL",
-                match r.idl {
-                    Some(v) => format!(
-                        "{} {} ({} × SD of {} reagent blanks)",
-                        g(v),
-                        r.unit,
-                        r.idl_factor,
-                        r.n_reagent
-                    ),
-                    None => "–".into(),
-                },
-            ),
-        ];
+        let pairs = summary(r);
         flow.table(&Table {
             columns: vec![
                 Column {
@@ -234,83 +170,171 @@ pub fn record(
             items.extend(plot.iter().map(|i| i.moved(x + 5.0, y)));
         });
         flow.space(8.0);
-        let kind = |k: StudyKind| match k {
-            StudyKind::Spike => "spike",
-            StudyKind::Blank => "blank",
-            StudyKind::ReagentBlank => "reagent blank",
-        };
-        let data = Table {
-            columns: vec![
-                Column {
-                    title: "Lab ID".into(),
-                    width: 70.0,
-                    align: Align::Left,
-                },
-                Column {
-                    title: "Kind".into(),
-                    width: 70.0,
-                    align: Align::Left,
-                },
-                Column {
-                    title: format!("Value ({})", r.unit),
-                    width: 70.0,
-                    align: Align::Decimal,
-                },
-                Column {
-                    title: "Spike level".into(),
-                    width: 60.0,
-                    align: Align::Decimal,
-                },
-                Column {
-                    title: "Prepared".into(),
-                    width: 70.0,
-                    align: Align::Left,
-                },
-                Column {
-                    title: "Analysed".into(),
-                    width: 70.0,
-                    align: Align::Left,
-                },
-                Column {
-                    title: "Batch".into(),
-                    width: cw - 410.0,
-                    align: Align::Left,
-                },
-            ],
-            show_header: true,
-            header: Style::new(7.0).bold(),
-            body: Style::new(7.0),
-            rows: grp
-                .rows
-                .iter()
-                .map(|s| {
-                    let excluded = r.excluded.iter().any(|(id, _)| *id == s.lab_id);
-                    Row {
-                        cells: vec![
-                            Cell::Text(format!(
-                                "{}{}",
-                                s.lab_id,
-                                if excluded { " (excluded)" } else { "" }
-                            )),
-                            Cell::Text(kind(s.kind).into()),
-                            Cell::Text(
-                                s.value
-                                    .map(|v| v.to_string())
-                                    .unwrap_or_else(|| "ND".into()),
-                            ),
-                            Cell::Text(s.spike_level.map(|v| v.to_string()).unwrap_or_default()),
-                            Cell::Text(s.prepared_on.map(|d| d.to_string()).unwrap_or_default()),
-                            Cell::Text(s.analyzed_on.to_string()),
-                            Cell::Text(s.batch.clone()),
-                        ],
-                        rule_above: false,
-                    }
-                })
-                .collect(),
-        };
-        flow.table(&data);
+        flow.table(&data_table(r, grp, cw));
     }
     let mut pages = flow.finish();
+    footers(&mut pages, source, tool_version);
+    let meta = crate::pdf::Meta {
+        title: format!("Detection-limit study record: {source}"),
+        author: lab_name.to_string(),
+        subject: "MDL, IDL and LOQ study (40 CFR Part 136 Appendix B)".into(),
+        creator: format!("limen {tool_version}"),
+        created,
+    };
+    Ok(crate::pdf::write(&pages, &meta)?.0)
+}
+
+/// The study's figures, one labelled line each.
+fn summary(r: &MdlResult) -> Vec<(&'static str, String)> {
+    vec![
+        (
+            "Procedure",
+            "40 CFR Part 136 Appendix B, Revision 2".to_string(),
+        ),
+        (
+            "Spikes",
+            format!(
+                "n = {}, level(s) {}; mean {}, SD {}, t(n−1, 0.99) = {}",
+                r.n_spike,
+                r.spike_levels
+                    .iter()
+                    .map(|l| g(*l))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+                g(r.mean_spike),
+                g(r.sd_spike),
+                if r.t_value.is_finite() {
+                    format!("{:.3}", r.t_value)
+                } else {
+                    "–".into()
+                }
+            ),
+        ),
+        ("MDL_S", format!("{} {}", g(r.mdl_s), r.unit)),
+        (
+            "Blanks",
+            format!("n = {}, numeric {}", r.n_blank, r.n_blank_numeric),
+        ),
+        (
+            "MDL_b",
+            format!(
+                "{} ({})",
+                r.mdl_b.map(g).unwrap_or_else(|| "–".into()),
+                r.mdl_b_rule
+            ),
+        ),
+        (
+            "MDL",
+            if r.ok() {
+                format!("{} {} ({} governs)", g(r.mdl), r.unit, r.governs.name())
+            } else {
+                "no result".into()
+            },
+        ),
+        (
+            "LOQ",
+            if r.ok() {
+                format!("{} {} ({})", g(r.loq), r.unit, r.loq_rule.describe())
+            } else {
+                "no result".into()
+            },
+        ),
+        (
+            "IDL",
+            match r.idl {
+                Some(v) => format!(
+                    "{} {} ({} × SD of {} reagent blanks)",
+                    g(v),
+                    r.unit,
+                    r.idl_factor,
+                    r.n_reagent
+                ),
+                None => "–".into(),
+            },
+        ),
+    ]
+}
+
+/// Every replicate of the group, with exclusions marked.
+fn data_table(r: &MdlResult, grp: &Group, cw: f32) -> Table {
+    let kind = |k: StudyKind| match k {
+        StudyKind::Spike => "spike",
+        StudyKind::Blank => "blank",
+        StudyKind::ReagentBlank => "reagent blank",
+    };
+    Table {
+        columns: vec![
+            Column {
+                title: "Lab ID".into(),
+                width: 70.0,
+                align: Align::Left,
+            },
+            Column {
+                title: "Kind".into(),
+                width: 70.0,
+                align: Align::Left,
+            },
+            Column {
+                title: format!("Value ({})", r.unit),
+                width: 70.0,
+                align: Align::Decimal,
+            },
+            Column {
+                title: "Spike level".into(),
+                width: 60.0,
+                align: Align::Decimal,
+            },
+            Column {
+                title: "Prepared".into(),
+                width: 70.0,
+                align: Align::Left,
+            },
+            Column {
+                title: "Analysed".into(),
+                width: 70.0,
+                align: Align::Left,
+            },
+            Column {
+                title: "Batch".into(),
+                width: cw - 410.0,
+                align: Align::Left,
+            },
+        ],
+        show_header: true,
+        header: Style::new(7.0).bold(),
+        body: Style::new(7.0),
+        rows: grp
+            .rows
+            .iter()
+            .map(|s| {
+                let excluded = r.excluded.iter().any(|(id, _)| *id == s.lab_id);
+                Row {
+                    cells: vec![
+                        Cell::Text(format!(
+                            "{}{}",
+                            s.lab_id,
+                            if excluded { " (excluded)" } else { "" }
+                        )),
+                        Cell::Text(kind(s.kind).into()),
+                        Cell::Text(
+                            s.value
+                                .map(|v| v.to_string())
+                                .unwrap_or_else(|| "ND".into()),
+                        ),
+                        Cell::Text(s.spike_level.map(|v| v.to_string()).unwrap_or_default()),
+                        Cell::Text(s.prepared_on.map(|d| d.to_string()).unwrap_or_default()),
+                        Cell::Text(s.analyzed_on.to_string()),
+                        Cell::Text(s.batch.clone()),
+                    ],
+                    rule_above: false,
+                }
+            })
+            .collect(),
+    }
+}
+
+/// Source, page i of n and the tool version at the foot of every page.
+fn footers(pages: &mut [Page], source: &str, tool_version: &str) {
     let total = pages.len();
     for (i, p) in pages.iter_mut().enumerate() {
         p.items.push(Item::Line {
@@ -333,12 +357,4 @@ pub fn record(
             color: GREY,
         });
     }
-    let meta = crate::pdf::Meta {
-        title: format!("Detection-limit study record: {source}"),
-        author: lab_name.to_string(),
-        subject: "MDL, IDL and LOQ study (40 CFR Part 136 Appendix B)".into(),
-        creator: format!("limen {tool_version}"),
-        created,
-    };
-    Ok(crate::pdf::write(&pages, &meta)?.0)
 }

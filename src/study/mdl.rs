@@ -2,7 +2,7 @@
 //! with IDL and LOQ, design checks and outlier flags.
 
 use super::stats::{grubbs_outlier, mean, sd, t99};
-use super::{Group, StudyKind};
+use super::{Group, StudyKind, StudyRow};
 use crate::units::Unit;
 use std::collections::BTreeSet;
 
@@ -173,27 +173,7 @@ pub fn compute(group: &Group, opts: &Options) -> MdlResult {
 
     let spike_rows: Vec<_> = kept(StudyKind::Spike).collect();
     let spikes: Vec<f64> = spike_rows.iter().filter_map(|r| r.value).collect();
-    let no_numeric = spike_rows.iter().filter(|r| r.value.is_none()).count();
-    let non_positive = spikes.iter().filter(|v| **v <= 0.0).count();
-    if no_numeric + non_positive > 0 {
-        warnings.push(format!(
-            "{} spike(s) gave no numeric result or a result ≤ 0: raise the spike level",
-            no_numeric + non_positive
-        ));
-    }
-    if spikes.len() < 7 {
-        errors.push(format!(
-            "{} numeric spike result(s); Appendix B needs at least 7",
-            spikes.len()
-        ));
-    }
-    let dates: BTreeSet<_> = spike_rows.iter().filter_map(|r| r.prepared_on).collect();
-    if !spike_rows.is_empty() && dates.len() < 3 {
-        warnings.push(format!(
-            "spikes prepared on {} date(s); Appendix B asks for at least 3 separate dates",
-            dates.len()
-        ));
-    }
+    check_spikes(&spike_rows, &spikes, &mut warnings, &mut errors);
     let (mean_spike, sd_spike) = (mean(&spikes), sd(&spikes));
     let t_value = t99(spikes.len());
     let mdl_s = t_value * sd_spike;
@@ -206,118 +186,30 @@ pub fn compute(group: &Group, opts: &Options) -> MdlResult {
             "{n_blank} method blank(s); Appendix B needs at least 7"
         ));
     }
-    let (mean_blank, sd_blank, mdl_b, mdl_b_rule) = if blanks.is_empty() {
-        (
-            None,
-            None,
-            None,
-            "not applicable: no blank gave a numeric result".to_string(),
-        )
-    } else if n_blank > 100 {
-        // Rank round(0.99 n) of the ordered results; results with no number
-        // count as the lowest.
-        let rank = (0.99 * n_blank as f64).round() as usize;
-        let mut sorted = blanks.clone();
-        sorted.sort_by(|a, b| a.total_cmp(b));
-        let missing = n_blank - blanks.len();
-        let value = rank
-            .checked_sub(missing + 1)
-            .and_then(|i| sorted.get(i))
-            .copied();
-        (
-            Some(mean(&blanks)),
-            Some(sd(&blanks)),
-            value,
-            format!("result ranked {rank} of {n_blank} ordered blanks (99th percentile)"),
-        )
-    } else if blanks.len() < n_blank {
-        let hi = blanks.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        (
-            Some(mean(&blanks)),
-            (blanks.len() > 1).then(|| sd(&blanks)),
-            Some(hi),
-            "highest numeric blank (some blanks gave no numeric result)".to_string(),
-        )
-    } else {
-        let (m, s) = (mean(&blanks), sd(&blanks));
-        let t = t99(blanks.len());
-        (
-            Some(m),
-            Some(s),
-            Some(m.max(0.0) + t * s),
-            format!("mean (0 if negative) + t({}, 0.99) × S_b", blanks.len() - 1),
-        )
-    };
+    let (mean_blank, sd_blank, mdl_b, mdl_b_rule) = blank_mdl(&blanks, n_blank);
 
-    for (name, values) in [("spike", &spikes), ("blank", &blanks)] {
-        if let Some((i, g, crit)) = grubbs_outlier(values) {
-            let id = match name {
-                "spike" => spike_rows.iter().filter(|r| r.value.is_some()).nth(i),
-                _ => blank_rows.iter().filter(|r| r.value.is_some()).nth(i),
-            }
-            .map(|r| r.lab_id.clone())
-            .unwrap_or_default();
-            warnings.push(format!(
-                "suspected outlier: {name} {id} = {} (Grubbs G = {:.3} > {:.3}, α = 0.05); kept, not dropped",
-                fmt(values[i]),
-                g,
-                crit
-            ));
-        }
+    for (name, values, rows) in [
+        ("spike", &spikes, &spike_rows),
+        ("blank", &blanks, &blank_rows),
+    ] {
+        warnings.extend(outlier(name, values, rows));
     }
 
     let (mdl, governs) = match mdl_b {
         Some(b) if b > mdl_s => (b, Governs::Blanks),
         _ => (mdl_s, Governs::Spikes),
     };
-    let mut loq = match &opts.loq {
-        LoqRule::TenSd => 10.0 * sd_spike,
-        LoqRule::MinimumLevel => nearest_125(3.18 * mdl),
-        LoqRule::Factor(x) => x * mdl,
-        LoqRule::LowestStandard(v) => *v,
-    };
-    if errors.is_empty() && loq < mdl {
-        warnings.push(format!(
-            "the LOQ by {} ({}) is below the MDL; the LOQ is set to the MDL",
-            opts.loq.id(),
-            fmt(loq)
-        ));
-        loq = mdl;
-    }
-    let levels: BTreeSet<u64> = spike_rows
-        .iter()
-        .filter_map(|r| r.spike_level)
-        .map(f64::to_bits)
-        .collect();
-    let spike_levels: Vec<f64> = levels.into_iter().map(f64::from_bits).collect();
+    let loq = loq_for(&opts.loq, sd_spike, mdl, errors.is_empty(), &mut warnings);
+    let spike_levels = levels(&spike_rows);
     if errors.is_empty() {
-        for level in &spike_levels {
-            if *level < 2.0 * mdl || *level > 10.0 * mdl {
-                warnings.push(format!(
-                    "spike level {} is outside 2–10 × the MDL ({} to {})",
-                    fmt(*level),
-                    fmt(2.0 * mdl),
-                    fmt(10.0 * mdl)
-                ));
-            }
-        }
+        warnings.extend(spike_level_warnings(&spike_levels, mdl));
     }
 
     let reagent: Vec<f64> = kept(StudyKind::ReagentBlank)
         .filter_map(|r| r.value)
         .collect();
     let n_reagent = kept(StudyKind::ReagentBlank).count();
-    let idl = if reagent.len() >= 10 {
-        Some(opts.idl_factor * sd(&reagent))
-    } else {
-        if n_reagent > 0 {
-            warnings.push(format!(
-                "{} numeric reagent blank(s): the IDL needs at least 10",
-                reagent.len()
-            ));
-        }
-        None
-    };
+    let idl = idl(&reagent, n_reagent, opts.idl_factor, &mut warnings);
     MdlResult {
         analyte: group.analyte.clone(),
         matrix: group.matrix.clone(),
@@ -350,10 +242,166 @@ pub fn compute(group: &Group, opts: &Options) -> MdlResult {
     }
 }
 
+/// Appendix B's demands on the spikes: at least 7 numeric results, above
+/// zero, prepared on at least 3 dates.
+fn check_spikes(
+    spike_rows: &[&StudyRow],
+    spikes: &[f64],
+    warnings: &mut Vec<String>,
+    errors: &mut Vec<String>,
+) {
+    let no_numeric = spike_rows.iter().filter(|r| r.value.is_none()).count();
+    let non_positive = spikes.iter().filter(|v| **v <= 0.0).count();
+    if no_numeric + non_positive > 0 {
+        warnings.push(format!(
+            "{} spike(s) gave no numeric result or a result ≤ 0: raise the spike level",
+            no_numeric + non_positive
+        ));
+    }
+    if spikes.len() < 7 {
+        errors.push(format!(
+            "{} numeric spike result(s); Appendix B needs at least 7",
+            spikes.len()
+        ));
+    }
+    let dates: BTreeSet<_> = spike_rows.iter().filter_map(|r| r.prepared_on).collect();
+    if !spike_rows.is_empty() && dates.len() < 3 {
+        warnings.push(format!(
+            "spikes prepared on {} date(s); Appendix B asks for at least 3 separate dates",
+            dates.len()
+        ));
+    }
+}
+
+/// The LOQ by the chosen rule, never below the MDL (a warning says so
+/// when the rule gave less).
+fn loq_for(rule: &LoqRule, sd_spike: f64, mdl: f64, ok: bool, warnings: &mut Vec<String>) -> f64 {
+    let loq = match rule {
+        LoqRule::TenSd => 10.0 * sd_spike,
+        LoqRule::MinimumLevel => nearest_125(3.18 * mdl),
+        LoqRule::Factor(x) => x * mdl,
+        LoqRule::LowestStandard(v) => *v,
+    };
+    if ok && loq < mdl {
+        warnings.push(format!(
+            "the LOQ by {} ({}) is below the MDL; the LOQ is set to the MDL",
+            rule.id(),
+            fmt(loq)
+        ));
+        return mdl;
+    }
+    loq
+}
+
+/// The distinct spike levels, ascending.
+fn levels(spike_rows: &[&StudyRow]) -> Vec<f64> {
+    let levels: BTreeSet<u64> = spike_rows
+        .iter()
+        .filter_map(|r| r.spike_level)
+        .map(f64::to_bits)
+        .collect();
+    levels.into_iter().map(f64::from_bits).collect()
+}
+
+/// Appendix B asks for spikes at 2–10 × the MDL found.
+fn spike_level_warnings(levels: &[f64], mdl: f64) -> Vec<String> {
+    levels
+        .iter()
+        .filter(|&&level| level < 2.0 * mdl || level > 10.0 * mdl)
+        .map(|level| {
+            format!(
+                "spike level {} is outside 2–10 × the MDL ({} to {})",
+                fmt(*level),
+                fmt(2.0 * mdl),
+                fmt(10.0 * mdl)
+            )
+        })
+        .collect()
+}
+
+/// MDL_b, Appendix B Rev. 2: with more than 100 blanks the 99th-percentile
+/// result; when some blanks gave no number, the highest numeric blank;
+/// else mean (0 if negative) + t × SD. Returns (mean, SD, MDL_b, rule).
+fn blank_mdl(blanks: &[f64], n_blank: usize) -> (Option<f64>, Option<f64>, Option<f64>, String) {
+    if blanks.is_empty() {
+        (
+            None,
+            None,
+            None,
+            "not applicable: no blank gave a numeric result".to_string(),
+        )
+    } else if n_blank > 100 {
+        // Rank round(0.99 n) of the ordered results; results with no number
+        // count as the lowest.
+        let rank = (0.99 * n_blank as f64).round() as usize;
+        let mut sorted = blanks.to_vec();
+        sorted.sort_by(|a, b| a.total_cmp(b));
+        let missing = n_blank - blanks.len();
+        let value = rank
+            .checked_sub(missing + 1)
+            .and_then(|i| sorted.get(i))
+            .copied();
+        (
+            Some(mean(blanks)),
+            Some(sd(blanks)),
+            value,
+            format!("result ranked {rank} of {n_blank} ordered blanks (99th percentile)"),
+        )
+    } else if blanks.len() < n_blank {
+        let hi = blanks.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        (
+            Some(mean(blanks)),
+            (blanks.len() > 1).then(|| sd(blanks)),
+            Some(hi),
+            "highest numeric blank (some blanks gave no numeric result)".to_string(),
+        )
+    } else {
+        let (m, s) = (mean(&blanks), sd(blanks));
+        let t = t99(blanks.len());
+        (
+            Some(m),
+            Some(s),
+            Some(m.max(0.0) + t * s),
+            format!("mean (0 if negative) + t({}, 0.99) × S_b", blanks.len() - 1),
+        )
+    }
+}
+
+/// A Grubbs outlier among the numeric results of one kind, as a warning.
+fn outlier(name: &str, values: &[f64], rows: &[&StudyRow]) -> Option<String> {
+    let (i, g, crit) = grubbs_outlier(values)?;
+    let id = rows
+        .iter()
+        .filter(|r| r.value.is_some())
+        .nth(i)
+        .map(|r| r.lab_id.clone())
+        .unwrap_or_default();
+    Some(format!(
+        "suspected outlier: {name} {id} = {} (Grubbs G = {:.3} > {:.3}, α = 0.05); kept, not dropped",
+        fmt(values[i]),
+        g,
+        crit
+    ))
+}
+
+/// IDL = factor × SD of at least 10 numeric reagent blanks.
+fn idl(reagent: &[f64], n_reagent: usize, factor: f64, warnings: &mut Vec<String>) -> Option<f64> {
+    if reagent.len() >= 10 {
+        return Some(factor * sd(reagent));
+    }
+    if n_reagent > 0 {
+        warnings.push(format!(
+            "{} numeric reagent blank(s): the IDL needs at least 10",
+            reagent.len()
+        ));
+    }
+    None
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::study::{StudyRow, groups};
+    use crate::study::groups;
     use chrono::NaiveDate;
 
     fn group(spikes: &[f64], blanks: &[Option<f64>], reagent: &[f64], days: u32) -> Group {
