@@ -140,14 +140,26 @@ pub fn verdict(c: &Comparison, rule: DecisionRule) -> Result<Verdict, VerdictErr
     })
 }
 
+/// The expanded uncertainty U (k = 2) of a result from its relative value
+/// in %: |x| × U% / 100. None on overflow.
+pub fn expanded_uncertainty(value: Decimal, uncertainty_pct: Decimal) -> Option<Decimal> {
+    value
+        .abs()
+        .checked_mul(uncertainty_pct)?
+        .checked_div(Decimal::ONE_HUNDRED)
+}
+
+/// U as reported: at most two significant figures (GUM, JCGM 100:2008,
+/// 7.2.6), and never more than the result's own.
+pub fn reported_uncertainty(u: Decimal, sig: u32) -> Decimal {
+    crate::numeric::round_sig(u, sig.min(2))
+}
+
 /// ILAC-G8:09/2019 guard band with w = U (expanded uncertainty, k = 2):
 /// pass up to L − U, conditional pass up to L, conditional fail up to L + U,
 /// fail beyond.
 pub fn guard_band(value: Decimal, limit: Decimal, uncertainty_pct: Decimal) -> Option<Verdict> {
-    let u = value
-        .abs()
-        .checked_mul(uncertainty_pct)?
-        .checked_div(Decimal::ONE_HUNDRED)?;
+    let u = expanded_uncertainty(value, uncertainty_pct)?;
     Some(if value <= limit.checked_sub(u)? {
         Verdict::Pass
     } else if value <= limit {
@@ -206,6 +218,20 @@ mod tests {
             Some(Verdict::ConditionalFail)
         );
         assert_eq!(guard_band(d("110.0001"), d("99"), pct), Some(Verdict::Fail));
+    }
+
+    // U = |x| × U% / 100; reported to two significant figures (JCGM 100:2008
+    // GUM 7.2.6: "at most two significant digits"), round half to even.
+    #[test]
+    fn expanded_uncertainty_and_its_reported_digits() {
+        assert_eq!(expanded_uncertainty(d("74.6"), d("12")), Some(d("8.952")));
+        assert_eq!(expanded_uncertainty(d("-2.5"), d("10")), Some(d("0.25")));
+        assert_eq!(reported_uncertainty(d("8.952"), 3).to_string(), "9.0");
+        assert_eq!(reported_uncertainty(d("10.395"), 3).to_string(), "10");
+        assert_eq!(reported_uncertainty(d("0.0125"), 3).to_string(), "0.012");
+        // A lab reporting one significant figure gets U to one as well.
+        assert_eq!(reported_uncertainty(d("8.952"), 1).to_string(), "9");
+        assert_eq!(expanded_uncertainty(Decimal::MAX, d("200")), None);
     }
 
     fn cmp(state: State, value: &str) -> Comparison {

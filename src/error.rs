@@ -8,6 +8,11 @@ use crate::report::EvalError;
 pub const EXIT_OK: i32 = 0;
 pub const EXIT_INPUT: i32 = 2;
 pub const EXIT_BLOCKED: i32 = 3;
+/// `verify`: the file is not an issued report, or it was altered.
+pub const EXIT_NOT_ISSUED: i32 = 1;
+/// Standard output was closed by its reader (`limen check … | head`): the
+/// status a shell reports for a process ended by SIGPIPE (128 + 13).
+pub const EXIT_BROKEN_PIPE: i32 = 141;
 
 #[derive(Debug, thiserror::Error)]
 pub enum Error {
@@ -25,6 +30,23 @@ pub enum Error {
     Ledger(#[from] crate::ledger::LedgerError),
     #[error("{message}")]
     Usage { message: String, hint: String },
+    #[error("cannot write to standard output: {0}")]
+    Stdout(std::io::Error),
+    /// The reader of standard output went away; not reported, only the status.
+    #[error("standard output closed")]
+    BrokenPipe,
+}
+
+impl Error {
+    /// A failed write to standard output: a closed pipe ends quietly, any
+    /// other failure (a full disk, say) is an error.
+    pub fn stdout(e: std::io::Error) -> Error {
+        if e.kind() == std::io::ErrorKind::BrokenPipe {
+            Error::BrokenPipe
+        } else {
+            Error::Stdout(e)
+        }
+    }
 }
 
 impl Error {
@@ -37,10 +59,15 @@ impl Error {
             Error::Template(e) => e.hint(),
             Error::Ledger(e) => e.hint(),
             Error::Usage { hint, .. } => hint.clone(),
+            Error::Stdout(_) => "check the disk or the file standard output goes to".into(),
+            Error::BrokenPipe => String::new(),
         }
     }
 
     pub fn exit_code(&self) -> i32 {
-        EXIT_INPUT
+        match self {
+            Error::BrokenPipe => EXIT_BROKEN_PIPE,
+            _ => EXIT_INPUT,
+        }
     }
 }

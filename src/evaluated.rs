@@ -64,6 +64,9 @@ pub struct ReportRow {
     pub spec_citation: Arc<str>,
     pub verdict: Option<Verdict>,
     pub uncertainty_pct: Option<Decimal>,
+    /// The expanded uncertainty U (k = 2) as printed, in `unit`: for a
+    /// quantified result that gives `uncertainty_pct`, else None.
+    pub uncertainty: Option<Decimal>,
     pub qualifiers: Vec<String>,
     /// The register row used: study id, else file:line.
     pub limits_row: Arc<str>,

@@ -2,6 +2,7 @@
 //! error leaves nothing behind under a final name.
 
 use crate::output::{OutputError, check_free, write_new};
+use crate::read::{Batch, Workspace};
 use crate::render::certificate::Certificate;
 use crate::render::csv::Csv;
 use crate::render::{Render, RenderError};
@@ -20,12 +21,7 @@ pub fn render(
     report: &Report,
     templates: &Templates,
 ) -> Result<(Vec<IssuedFile>, Vec<String>), RenderError> {
-    let h = &report.header;
-    let stem = if h.revision == 0 {
-        h.report.clone()
-    } else {
-        format!("{}-r{}", h.report, h.revision)
-    };
+    let stem = stem(report);
     let mut files = Vec::new();
     let mut warnings = Vec::new();
     let renderers: [&dyn Render; 2] = [&Csv, &Certificate { templates }];
@@ -38,6 +34,25 @@ pub fn render(
         });
     }
     Ok((files, warnings))
+}
+
+/// The file name stem: the report number, with `-r<N>` from revision 1 on.
+fn stem(report: &Report) -> String {
+    let h = &report.header;
+    if h.revision == 0 {
+        h.report.clone()
+    } else {
+        format!("{}-r{}", h.report, h.revision)
+    }
+}
+
+/// The names of the files a report is issued as, in render order.
+pub fn file_names(report: &Report) -> Vec<String> {
+    let stem = stem(report);
+    [Csv.extension(), "pdf"]
+        .iter()
+        .map(|ext| format!("{stem}.{ext}"))
+        .collect()
 }
 
 /// Writes the files of one or more reports, refusing if any name is taken.
@@ -82,12 +97,18 @@ impl Fault {
     }
 }
 
+#[cfg(feature = "fault-injection")]
 fn stop_at(fault: Option<Fault>, here: Fault) {
     if fault == Some(here) {
         // A crash, not an error: nothing after this point runs.
         std::process::abort();
     }
 }
+
+/// Without the `fault-injection` feature (the shipped build) there is no
+/// way to stop the process here.
+#[cfg(not(feature = "fault-injection"))]
+fn stop_at(_: Option<Fault>, _: Fault) {}
 
 /// The report's files with its verification code (the first 16 hex digits
 /// of the CSV's SHA-256) set on the report and printed on the certificate.
@@ -112,6 +133,28 @@ pub struct Record<'a> {
     pub templates: &'a Templates,
 }
 
+/// Refuses a report that cannot be issued into `dir`: a first issue whose
+/// number the ledger already holds, or a file name already taken. The
+/// ledger checks the number again inside the recording transaction, so a
+/// concurrent issuer of the same number still loses cleanly.
+fn preflight(
+    ledger: &crate::ledger::Ledger,
+    dir: &Path,
+    report: &Report,
+) -> Result<(), crate::Error> {
+    if report.header.revision == 0 {
+        if let Some(prev) = ledger.latest(&report.header.report)? {
+            return Err(crate::ledger::LedgerError::AlreadyIssued {
+                report: prev.report,
+                revision: prev.revision,
+                issued_at: prev.issued_at,
+            }
+            .into());
+        }
+    }
+    Ok(check_free(dir, &file_names(report))?)
+}
+
 /// Issues one report into `dir` and records it: the CSV is hashed for the
 /// certificate's verification code, both files are staged and synced, the
 /// record is written as pending, the files get their final names, and only
@@ -123,24 +166,23 @@ pub fn issue_recorded(
     rec: Record<'_>,
     fault: Option<Fault>,
 ) -> Result<(Vec<PathBuf>, Vec<String>), crate::Error> {
-    if report.header.revision == 0 {
-        if let Some(prev) = ledger.latest(&report.header.report)? {
-            return Err(crate::ledger::LedgerError::AlreadyIssued {
-                report: prev.report,
-                revision: prev.revision,
-                issued_at: prev.issued_at,
-            }
-            .into());
-        }
-    }
+    preflight(ledger, dir, report)?;
+    record_files(ledger, dir, report, rec, fault)
+}
+
+/// Stages, records, publishes and completes one report whose number and
+/// file names have passed `preflight`.
+fn record_files(
+    ledger: &mut crate::ledger::Ledger,
+    dir: &Path,
+    report: &mut Report,
+    rec: Record<'_>,
+    fault: Option<Fault>,
+) -> Result<(Vec<PathBuf>, Vec<String>), crate::Error> {
     let (files, warnings) = match rec.rendered {
         Some(done) => done,
         None => render_coded(report, rec.templates)?,
     };
-    check_free(
-        dir,
-        &files.iter().map(|f| f.name.clone()).collect::<Vec<_>>(),
-    )?;
     let mut staged = Vec::new();
     for f in &files {
         match crate::output::stage(dir, &f.name, &f.bytes) {
@@ -193,4 +235,79 @@ pub fn issue_recorded(
     stop_at(fault, Fault::AfterComplete);
     staged.iter().for_each(crate::output::discard);
     Ok((staged.into_iter().map(|s| s.target).collect(), warnings))
+}
+
+/// A workspace that reports are issued from: its files, wording and ledger.
+pub struct Site<'a> {
+    pub ws: &'a Workspace,
+    pub templates: &'a Templates,
+    pub ledger: crate::ledger::Ledger,
+}
+
+/// One evaluated batch to issue, from `sites[site]`.
+pub struct Job {
+    pub report: Report,
+    pub batch: Batch,
+    pub site: usize,
+}
+
+/// What `issue_all` reports as it goes, for the caller to show.
+pub enum Event<'e> {
+    /// A temporary file of an interrupted earlier run was removed.
+    Swept(&'e str),
+    /// The report is being rendered.
+    Rendering(&'e str),
+}
+
+/// One issued report: its files, and any warnings its renderers raised.
+pub struct Issued {
+    pub report: Report,
+    pub paths: Vec<PathBuf>,
+    pub warnings: Vec<String>,
+}
+
+/// Issues every report into `dir`, or none: leftovers of interrupted runs
+/// are swept, every number and file name is checked, and every file of
+/// every report is rendered before the first is recorded, so a refusal or a
+/// rendering error leaves nothing issued. (A crash during recording leaves
+/// each report complete or absent; the ledger settles it on next open.)
+pub fn issue_all(
+    sites: &mut [Site<'_>],
+    dir: &Path,
+    jobs: Vec<Job>,
+    fault: Option<Fault>,
+    on: &mut dyn FnMut(Event<'_>),
+) -> Result<Vec<Issued>, crate::Error> {
+    for name in crate::output::sweep(dir) {
+        on(Event::Swept(&name));
+    }
+    for j in &jobs {
+        preflight(&sites[j.site].ledger, dir, &j.report)?;
+    }
+    let mut jobs = jobs;
+    let mut rendered = Vec::with_capacity(jobs.len());
+    for j in jobs.iter_mut() {
+        on(Event::Rendering(&j.report.header.report));
+        rendered.push(render_coded(&mut j.report, sites[j.site].templates)?);
+    }
+    let mut issued = Vec::with_capacity(jobs.len());
+    for (mut job, files) in jobs.into_iter().zip(rendered) {
+        let site = &mut sites[job.site];
+        let record = Record {
+            rendered: Some(files),
+            snapshot: crate::ledger::recompute::snapshot(site.ws, &job.batch, &job.report),
+            local_offset: site.ws.lab.utc_offset.to_string(),
+            reason: String::new(),
+            changed: Vec::new(),
+            templates: site.templates,
+        };
+        let (paths, warnings) =
+            record_files(&mut site.ledger, dir, &mut job.report, record, fault)?;
+        issued.push(Issued {
+            report: job.report,
+            paths,
+            warnings,
+        });
+    }
+    Ok(issued)
 }

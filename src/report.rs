@@ -249,6 +249,15 @@ fn classify_row(
             )
         }
     };
+    let uncertainty = match (state, row.uncertainty_pct) {
+        (State::Quantified, Some(pct)) => Some(classify::reported_uncertainty(
+            classify::expanded_uncertainty(r.value, pct).ok_or_else(|| EvalError::Overflow {
+                at: row.loc("uncertainty_pct"),
+            })?,
+            sig,
+        )),
+        _ => None,
+    };
     let (reported, value) = match state {
         State::NotDetected => (
             match nd_style {
@@ -294,6 +303,7 @@ fn classify_row(
             .unwrap_or_else(|| Arc::from("")),
         verdict,
         uncertainty_pct: row.uncertainty_pct,
+        uncertainty,
         qualifiers: Vec::new(),
         limits_row: r.limits.reference.clone(),
     })

@@ -251,3 +251,67 @@ fn page_size_comes_from_lab_toml() {
         "{info}"
     );
 }
+
+/// The words of the results tables (from the "Results" heading to the strip
+/// legend), without the running header and footer of each page.
+fn results_words(pages: &[String]) -> Vec<String> {
+    let mut words = Vec::new();
+    let mut inside = false;
+    for page in pages {
+        for line in page.lines() {
+            let t = line.trim();
+            if !inside && t == "Results" {
+                inside = true;
+                continue;
+            }
+            if inside && t.starts_with("Strip:") {
+                return words;
+            }
+            let running = t.contains("Verification code")
+                || t.contains("Page ")
+                || t.starts_with("Kestrel Bay")
+                || t.starts_with("Unit 7")
+                || t.starts_with("ISO/IEC");
+            if inside && !running {
+                words.extend(t.split_whitespace().map(String::from));
+            }
+        }
+    }
+    words
+}
+
+#[test]
+fn every_number_in_the_results_table_is_in_the_csv() {
+    let t = TestDir::new("pdf-numbers-in-csv");
+    demo(&t);
+    for report in ["COA-2611-041", "COA-2611-052"] {
+        let csv = t.read(&format!("out/reports/{report}.csv"));
+        let mut r = csv::Reader::from_reader(csv.as_bytes());
+        let mut cells = std::collections::HashSet::new();
+        for rec in r.records() {
+            for cell in rec.unwrap().iter() {
+                cells.insert(cell.to_string());
+                cells.extend(cell.split_whitespace().map(String::from));
+            }
+        }
+        let words = results_words(&pages(&t.path(&format!("out/reports/{report}.pdf"))));
+        let numbers: Vec<&String> = words
+            .iter()
+            .filter(|w| w.parse::<rust_decimal::Decimal>().is_ok())
+            .collect();
+        assert!(numbers.len() > 50, "{report}: {numbers:?}");
+        for n in numbers {
+            assert!(
+                cells.contains(n),
+                "{report}: {n} is printed but not in the CSV"
+            );
+        }
+        // And the other way: each U in the CSV is printed under its result.
+        let text = words.join(" ");
+        for u in util::csv_column(&csv, "uncertainty") {
+            if !u.is_empty() {
+                assert!(text.contains(&format!("± {u}")), "{report}: U {u}");
+            }
+        }
+    }
+}

@@ -27,14 +27,16 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut out = std::io::stdout().lock();
     match a.format {
         Format::Table => {
-            let _ =
-                out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes());
+            out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes())
+                .and_then(|()| out.flush())
+                .map_err(Error::stdout)?;
         }
         Format::Csv => {
-            let _ = Csv.write(
+            Csv.write(
                 &report,
                 std::io::BufWriter::with_capacity(1 << 16, &mut out),
-            );
+            )
+            .map_err(Error::stdout)?;
             for p in &report.problems {
                 eprintln!("blocked: {p}");
                 eprintln!("hint: {}", p.hint);

@@ -15,9 +15,9 @@ pub fn run(a: Args) -> Result<i32, Error> {
     if revisions.is_empty() {
         return Err(limen::ledger::LedgerError::Unknown { report: a.report }.into());
     }
-    println!("{}", a.report);
+    let mut text = format!("{}\n", a.report);
     for r in &revisions {
-        println!(
+        text.push_str(&format!(
             "  revision {}  issued {} ({})  by {}  limen {}  {} result(s) changed{}",
             r.revision,
             r.issued_at,
@@ -30,7 +30,8 @@ pub fn run(a: Args) -> Result<i32, Error> {
             } else {
                 format!("  reason: {}", r.reason)
             }
-        );
+        ));
     }
+    super::say(&text)?;
     Ok(EXIT_OK)
 }

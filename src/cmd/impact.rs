@@ -72,38 +72,13 @@ pub fn run(a: Args) -> Result<i32, Error> {
     };
     let (checked, affected, failed) = impact(&ledger, &against, since, &run)?;
     match a.format {
-        Format::Csv => {
-            let mut w = csv::WriterBuilder::new()
-                .terminator(csv::Terminator::Any(b'\n'))
-                .from_writer(std::io::stdout());
-            let _ = w.write_record([
-                "report",
-                "revision",
-                "issued_at",
-                "changed_results",
-                "state_changes",
-                "verdict_changes",
-                "value_changes",
-                "now_blocked",
-            ]);
-            for i in &affected {
-                let _ = w.write_record([
-                    i.issued.report.clone(),
-                    i.issued.revision.to_string(),
-                    i.issued.issued_at.clone(),
-                    i.changes.len().to_string(),
-                    i.state_changes.to_string(),
-                    i.verdict_changes.to_string(),
-                    i.value_changes.to_string(),
-                    i.now_blocked.to_string(),
-                ]);
-            }
-            let _ = w.flush();
-        }
-        Format::Table => print!(
-            "{}",
-            table(checked, &affected, &ws.register.file, &ws.specs.file)
-        ),
+        Format::Csv => impact_csv(&affected).map_err(Error::stdout)?,
+        Format::Table => super::say(&table(
+            checked,
+            &affected,
+            &ws.register.file,
+            &ws.specs.file,
+        ))?,
     }
     for f in &failed {
         eprintln!("warning: could not recompute {f}");
@@ -113,4 +88,40 @@ pub fn run(a: Args) -> Result<i32, Error> {
     } else {
         EXIT_BLOCKED
     })
+}
+
+/// The impact listing as CSV on standard output.
+fn impact_csv(affected: &[Impact]) -> std::io::Result<()> {
+    let mut w = csv::WriterBuilder::new()
+        .terminator(csv::Terminator::Any(b'\n'))
+        .from_writer(std::io::stdout().lock());
+    let io = |e: csv::Error| match e.into_kind() {
+        csv::ErrorKind::Io(e) => e,
+        other => std::io::Error::other(format!("{other:?}")),
+    };
+    w.write_record([
+        "report",
+        "revision",
+        "issued_at",
+        "changed_results",
+        "state_changes",
+        "verdict_changes",
+        "value_changes",
+        "now_blocked",
+    ])
+    .map_err(io)?;
+    for i in affected {
+        w.write_record([
+            i.issued.report.clone(),
+            i.issued.revision.to_string(),
+            i.issued.issued_at.clone(),
+            i.changes.len().to_string(),
+            i.state_changes.to_string(),
+            i.verdict_changes.to_string(),
+            i.value_changes.to_string(),
+            i.now_blocked.to_string(),
+        ])
+        .map_err(io)?;
+    }
+    w.flush()
 }

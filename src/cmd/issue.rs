@@ -1,6 +1,7 @@
 use super::run_info;
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
+use limen::issue::{Event, Job, Site, issue_all};
 use limen::ledger::Ledger;
 use limen::read::{Batch, Workspace};
 use limen::templates::Templates;
@@ -74,75 +75,49 @@ pub fn run(a: Args) -> Result<i32, Error> {
         eprintln!("hint: run `limen check` on the batch, resolve each problem, then issue again");
         return Ok(EXIT_BLOCKED);
     }
-    let mut ledgers = Vec::new();
-    for (_, ws, _) in &workspaces {
+    let mut sites = Vec::with_capacity(workspaces.len());
+    for (_, ws, templates) in &workspaces {
         let (ledger, notes) = Ledger::open(&ws.root)?;
         for n in notes {
             eprintln!("note: {n}");
         }
-        ledgers.push(ledger);
-    }
-    for name in limen::output::sweep(&a.out) {
-        eprintln!(
-            "note: removed {name}, left in {} by an interrupted run",
-            a.out.display()
-        );
-    }
-    // Nothing is issued unless all can be: every number new, every file name free.
-    for (r, _, k) in &reports {
-        if let Some(prev) = ledgers[*k].latest(&r.header.report)? {
-            return Err(limen::ledger::LedgerError::AlreadyIssued {
-                report: prev.report,
-                revision: prev.revision,
-                issued_at: prev.issued_at,
-            }
-            .into());
-        }
-        let stem = &r.header.report;
-        limen::output::check_free(&a.out, &[format!("{stem}.csv"), format!("{stem}.pdf")])?;
-    }
-    for name in limen::output::sweep(&a.out) {
-        eprintln!(
-            "note: removed {name}, left in {} by an interrupted run",
-            a.out.display()
-        );
-    }
-    // Every file of every report is rendered before any is recorded, so a
-    // rendering error leaves nothing issued.
-    let mut rendered = Vec::new();
-    for (report, _, k) in reports.iter_mut() {
-        progress.step(&format!("rendering {}", report.header.report));
-        rendered.push(limen::issue::render_coded(report, &workspaces[*k].2)?);
-    }
-    let mut lines = Vec::new();
-    for ((mut report, batch, k), files) in reports.into_iter().zip(rendered) {
-        let (_, ws, templates) = &workspaces[k];
-        let record = limen::issue::Record {
-            rendered: Some(files),
-            snapshot: limen::ledger::recompute::snapshot(ws, &batch, &report),
-            local_offset: ws.lab.utc_offset.to_string(),
-            reason: String::new(),
-            changed: Vec::new(),
+        sites.push(Site {
+            ws,
             templates,
-        };
-        let (paths, warnings) =
-            limen::issue::issue_recorded(&mut ledgers[k], &a.out, &mut report, record, fault)?;
-        for w in warnings {
+            ledger,
+        });
+    }
+    let jobs = reports
+        .into_iter()
+        .map(|(report, batch, site)| Job {
+            report,
+            batch,
+            site,
+        })
+        .collect();
+    let issued = issue_all(&mut sites, &a.out, jobs, fault, &mut |e| match e {
+        Event::Swept(name) => eprintln!(
+            "note: removed {name}, left in {} by an interrupted run",
+            a.out.display()
+        ),
+        Event::Rendering(report) => progress.step(&format!("rendering {report}")),
+    })?;
+    let mut lines = String::new();
+    for i in &issued {
+        for w in &i.warnings {
             eprintln!("warning: {w}");
         }
-        let written: Vec<String> = paths.iter().map(|p| p.display().to_string()).collect();
-        lines.push(format!(
-            "issued {} revision 0 ({} results, verification code {}): {}",
-            report.header.report,
-            report.rows.len(),
-            report.header.verification_code.as_deref().unwrap_or(""),
+        let written: Vec<String> = i.paths.iter().map(|p| p.display().to_string()).collect();
+        lines.push_str(&format!(
+            "issued {} revision 0 ({} results, verification code {}): {}\n",
+            i.report.header.report,
+            i.report.rows.len(),
+            i.report.header.verification_code.as_deref().unwrap_or(""),
             written.join(", ")
         ));
     }
     progress.finish();
-    for l in lines {
-        println!("{l}");
-    }
+    super::say(&lines)?;
     Ok(EXIT_OK)
 }
 

@@ -22,7 +22,9 @@ mod verify;
     about = "Limit-aware trace-metal results and certificates of analysis",
     long_about = "limen turns instrument readings into results checked against the MDL and LOQ in force \
                   and the regulatory or client limit, and issues the report.\n\n\
-                  Exit codes: 0 ok, 2 input error, 3 blocked."
+                  Exit codes: 0 ok; 1 from `verify` when the file is not an issued report or was \
+                  altered; 2 input error; 3 blocked (or, from `impact`, reports would change); \
+                  141 when standard output is closed early."
 )]
 struct Cli {
     #[command(subcommand)]
@@ -66,6 +68,7 @@ pub fn run() -> i32 {
     };
     match result {
         Ok(code) => code,
+        Err(Error::BrokenPipe) => limen::error::EXIT_BROKEN_PIPE,
         Err(e) => {
             eprintln!("error: {e}");
             eprintln!("hint: {}", e.hint());
@@ -129,8 +132,25 @@ pub fn run_info() -> Result<RunInfo, Error> {
     })
 }
 
+/// Writes text to standard output, reporting a failed write.
+pub fn say(text: &str) -> Result<(), Error> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    out.write_all(text.as_bytes())
+        .and_then(|()| out.flush())
+        .map_err(Error::stdout)
+}
+
 /// LIMEN_FAULT names a point at which `issue` stops the process, for the
-/// tests that prove an interrupted issue leaves a consistent ledger.
+/// tests that prove an interrupted issue leaves a consistent ledger. Only a
+/// build with the `fault-injection` feature (the one the tests run) reads
+/// it; the shipped binary has no way to stop itself mid-issue.
+#[cfg(not(feature = "fault-injection"))]
+pub fn fault() -> Result<Option<limen::issue::Fault>, Error> {
+    Ok(None)
+}
+
+#[cfg(feature = "fault-injection")]
 pub fn fault() -> Result<Option<limen::issue::Fault>, Error> {
     match std::env::var("LIMEN_FAULT") {
         Err(_) => Ok(None),

@@ -15,9 +15,9 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let bytes = limen::read::csvtable::read_file(&a.file)?;
     let (_, ledger) = super::ledger_workspace(a.workspace.as_deref())?;
     let v = verify_file(&ledger, &bytes)?;
-    println!("{}", v.describe(&a.file.display().to_string()));
+    super::say(&format!("{}\n", v.describe(&a.file.display().to_string())))?;
     Ok(match v {
-        Verification::NotIssued { .. } => 1,
-        Verification::Issued { .. } => 0,
+        Verification::NotIssued { .. } => limen::error::EXIT_NOT_ISSUED,
+        Verification::Issued { .. } => limen::error::EXIT_OK,
     })
 }

@@ -5,7 +5,7 @@ use super::Render;
 use crate::numeric::plain;
 use crate::report::{Report, ReportRow};
 
-pub const HEADER: [&str; 22] = [
+pub const HEADER: [&str; 23] = [
     "report",
     "revision",
     "lab_id",
@@ -28,6 +28,7 @@ pub const HEADER: [&str; 22] = [
     "verdict",
     "qualifiers",
     "limits_row",
+    "uncertainty",
 ];
 
 pub struct Csv;
@@ -78,6 +79,10 @@ fn write_row<W: std::io::Write>(
     text(w, r.verdict.map(|v| v.name()).unwrap_or(""))?;
     text(w, &qualifiers(report, r))?;
     text(w, &r.limits_row)?;
+    match r.uncertainty {
+        Some(u) => number(w, &u)?,
+        None => number(w, &"")?,
+    }
     w.write_record(None::<&[u8]>)
 }
 
@@ -121,7 +126,11 @@ impl Csv {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
             .from_writer(out);
-        let io = |e: ::csv::Error| std::io::Error::other(e.to_string());
+        // Keep an I/O error's kind, so a closed pipe stays a closed pipe.
+        let io = |e: ::csv::Error| match e.into_kind() {
+            ::csv::ErrorKind::Io(e) => e,
+            other => std::io::Error::other(format!("{other:?}")),
+        };
         w.write_record(HEADER).map_err(io)?;
         let mut num = String::new();
         for r in &report.rows {

@@ -356,7 +356,7 @@ fn blank_mdl(blanks: &[f64], n_blank: usize) -> (Option<f64>, Option<f64>, Optio
             "highest numeric blank (some blanks gave no numeric result)".to_string(),
         )
     } else {
-        let (m, s) = (mean(&blanks), sd(blanks));
+        let (m, s) = (mean(blanks), sd(blanks));
         let t = t99(blanks.len());
         (
             Some(m),

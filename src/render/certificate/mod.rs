@@ -9,7 +9,7 @@ mod strip;
 mod wording;
 
 pub use strip::strip;
-pub use wording::{Context, context, uncertainty};
+pub use wording::{Context, context};
 
 use super::{Output, Render, RenderError};
 use crate::layout::{Flow, Measure, Page, Style};

@@ -3,7 +3,7 @@
 //! the top-left; the wording comes in as labels and rendered templates.
 
 use super::strip::{RED, strip};
-use super::wording::{Context, paragraph_blocks, qualifier_codes, uncertainty};
+use super::wording::{Context, paragraph_blocks, qualifier_codes};
 use crate::layout::{
     Align, BLACK, CELL_PAD, Cell, Column, Flow, GREY, Item, Margins, Measure, Page, Row, Style,
     Table,
@@ -181,7 +181,6 @@ pub fn results(flow: &mut Flow<'_>, report: &Report, label: &Label<'_>) {
     let cw = flow.content_width();
     let widths: Vec<f32> = columns.iter().map(|c| c.1).collect();
     let strip_w = scaled(&widths, cw)[11] - 2.0 * CELL_PAD;
-    let sig = report.header.significant_figures;
     let mut rows = Vec::with_capacity(report.rows.len());
     let mut last_id: Option<&str> = None;
     for r in &report.rows {
@@ -212,7 +211,7 @@ pub fn results(flow: &mut Flow<'_>, report: &Report, label: &Label<'_>) {
                 },
                 Cell::Text(id(item)),
                 Cell::Text(r.analyte.to_string()),
-                Cell::Text(match uncertainty(r, sig) {
+                Cell::Text(match r.uncertainty {
                     Some(u) => format!("{}\n± {u}", r.reported),
                     None => r.reported.clone(),
                 }),

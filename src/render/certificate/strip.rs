@@ -139,6 +139,7 @@ mod tests {
             spec_citation: "".into(),
             verdict: Some(verdict),
             uncertainty_pct: None,
+            uncertainty: None,
             qualifiers: Vec::new(),
             limits_row: "S".into(),
         }

@@ -161,24 +161,8 @@ pub fn context(report: &Report) -> Context {
             })
             .unwrap_or_default(),
         changed_list: replaces.map(|r| r.changed.clone()).unwrap_or_default(),
-        has_uncertainty: rows
-            .iter()
-            .any(|r| uncertainty(r, h.significant_figures).is_some()),
+        has_uncertainty: rows.iter().any(|r| r.uncertainty.is_some()),
     }
-}
-
-/// The expanded uncertainty U (k = 2) of a quantified result, in its unit,
-/// when the result carries one.
-pub fn uncertainty(r: &ReportRow, sig: u32) -> Option<rust_decimal::Decimal> {
-    if r.state != State::Quantified {
-        return None;
-    }
-    let u = r
-        .value_unrounded
-        .abs()
-        .checked_mul(r.uncertainty_pct?)?
-        .checked_div(rust_decimal::Decimal::ONE_HUNDRED)?;
-    Some(crate::numeric::round_sig(u, sig.min(2)))
 }
 
 /// The one-letter qualifier codes the results table prints; the legend
