@@ -71,3 +71,15 @@ impl Error {
         }
     }
 }
+
+impl From<crate::study::register_update::UpdateError> for Error {
+    fn from(e: crate::study::register_update::UpdateError) -> Error {
+        match e {
+            crate::study::register_update::UpdateError::Read(r) => Error::Read(r),
+            other => Error::Usage {
+                message: other.to_string(),
+                hint: other.hint(),
+            },
+        }
+    }
+}

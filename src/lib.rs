@@ -17,6 +17,7 @@ pub mod pdf;
 pub mod problem;
 pub mod qc;
 pub mod read;
+pub mod reissue;
 pub mod render;
 pub mod report;
 pub mod resolve;

@@ -3,8 +3,9 @@ use limen::Error;
 use limen::error::EXIT_OK;
 use limen::issue::{Record, issue_recorded};
 use limen::ledger::Ledger;
-use limen::ledger::recompute::{Against, ReissueRequest, Reissued, impact, reissue, snapshot};
+use limen::ledger::recompute::{Against, impact, snapshot};
 use limen::read::{Batch, Workspace};
+use limen::reissue::{ReissueRequest, Reissued, reissue};
 use limen::templates::Templates;
 use std::path::{Path, PathBuf};
 

@@ -1,9 +1,10 @@
 use super::run_info;
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
-use limen::ledger::recompute::{Against, ReissueRequest, Reissued, reissue};
+use limen::ledger::recompute::Against;
 use limen::read::csvtable::read_file;
 use limen::read::{Register, Specs};
+use limen::reissue::{ReissueRequest, Reissued, reissue};
 use std::path::PathBuf;
 
 #[derive(clap::Args)]

@@ -84,6 +84,12 @@ pub enum LedgerError {
     },
     #[error("report {report} is not in the ledger")]
     Unknown { report: String },
+    /// A stored input no longer reads, or no longer evaluates, when an
+    /// issued report is recomputed.
+    #[error(transparent)]
+    Read(#[from] crate::read::ReadError),
+    #[error(transparent)]
+    Eval(Box<crate::report::EvalError>),
 }
 
 impl LedgerError {
@@ -96,6 +102,8 @@ impl LedgerError {
                 format!("an issued report never changes: use `limen reissue {report} --reason \"...\" --out DIR`")
             }
             LedgerError::Unknown { .. } => "check the report number; `limen history REPORT` lists what was issued".into(),
+            LedgerError::Read(e) => e.hint(),
+            LedgerError::Eval(e) => e.hint(),
         }
     }
 }

@@ -32,18 +32,6 @@ impl UpdateError {
     }
 }
 
-impl From<UpdateError> for crate::Error {
-    fn from(e: UpdateError) -> crate::Error {
-        match e {
-            UpdateError::Read(r) => crate::Error::Read(r),
-            other => crate::Error::Usage {
-                message: other.to_string(),
-                hint: other.hint(),
-            },
-        }
-    }
-}
-
 /// A decimal of an f64, with 15 significant digits (all an f64 holds).
 pub fn decimal_of(x: f64) -> Option<Decimal> {
     Decimal::from_scientific(&format!("{x:.14e}"))
