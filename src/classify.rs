@@ -283,4 +283,37 @@ mod tests {
             Err(VerdictError::NoUncertainty)
         );
     }
+
+    // The words of the report CSV's state and verdict columns (README): a
+    // renamed word would silently change every issued file.
+    #[test]
+    fn state_and_verdict_words_are_fixed() {
+        let states: Vec<String> = State::ALL.iter().map(|s| s.to_string()).collect();
+        assert_eq!(
+            states,
+            [
+                "not-detected",
+                "detected-below-loq",
+                "quantified",
+                "over-range"
+            ]
+        );
+        let verdicts: Vec<String> = Verdict::ALL.iter().map(|v| v.to_string()).collect();
+        assert_eq!(
+            verdicts,
+            [
+                "pass",
+                "conditional-pass",
+                "conditional-fail",
+                "fail",
+                "inconclusive"
+            ]
+        );
+        for s in State::ALL {
+            assert_eq!(s.to_string(), s.name());
+        }
+        for v in Verdict::ALL {
+            assert_eq!(format!("{v}"), v.name());
+        }
+    }
 }

@@ -57,6 +57,9 @@ pub fn round_sig(d: Decimal, sig: u32) -> Decimal {
     };
     let out = round_at(d, sig - 1 - e);
     // Rounding up across a power of ten (9.995 -> 10.00) adds a digit.
+    // (`e2 >= e` or no guard would act the same: re-rounding a value already
+    // at `sig` figures of the same exponent changes nothing. Equivalent
+    // mutants; see DEVELOPERS.md.)
     match leading_exponent(out) {
         Some(e2) if e2 > e => round_at(out, sig - 1 - e2),
         _ => out,
@@ -100,6 +103,7 @@ pub fn round_sig_up(d: Decimal, sig: u32) -> Decimal {
         r.rescale(0);
         r
     };
+    // As in round_sig, the guard only saves work when e2 == e (equivalent).
     match leading_exponent(out) {
         Some(e2) if e2 > e => round_sig(out, sig as u32),
         _ => out,
@@ -174,5 +178,32 @@ mod tests {
         assert_eq!(d("-0.012").to_string(), "-0.012");
         assert_eq!(d("1.5e-3"), d("0.0015"));
         assert_eq!(d(" 2.50 ").to_string(), "2.50");
+    }
+
+    // Each reported-value form is refused by name, not as "not a number"
+    // (common practice, no source: a lab reports these, instruments do not).
+    #[test]
+    fn every_reported_value_form_is_named_as_such() {
+        for t in ["<0.5", "> 2500", "ND", "nd", "n.d.", "N.D.", "BDL", "bdl"] {
+            let e = parse_decimal(t).unwrap_err();
+            assert!(e.contains("is a reported value"), "{t}: {e}");
+        }
+        let e = parse_decimal("n/a").unwrap_err();
+        assert!(e.contains("is not a number"), "{e}");
+        assert_eq!(
+            parse_decimal(" -0.25 ").unwrap(),
+            Decimal::from_str("-0.25").unwrap()
+        );
+        assert_eq!(parse_decimal("1.5e2").unwrap(), Decimal::from(150));
+    }
+
+    #[test]
+    fn plain_drops_meaningless_zeros_only() {
+        let d = |s: &str| Decimal::from_str(s).unwrap();
+        assert_eq!(plain(d("25.000")), "25");
+        assert_eq!(plain(d("0.0600")), "0.06");
+        assert_eq!(plain(d("1500")), "1500");
+        assert_eq!(plain(d("-0.000")), "0");
+        assert_eq!(plain(d("12.5")), "12.5");
     }
 }

@@ -389,4 +389,104 @@ mod tests {
         let row = solid("79228162514264337593543950335", "10", "0.1", "50");
         assert_eq!(reading_to_sample(&row, row.reading, row.reading_unit), None);
     }
+
+    fn workspace(limits: &str, specs: &str) -> Workspace {
+        let lab_text = "name = \"L\"\naddress = \"A\"\nsignatory = \"S\"\n".to_string();
+        Workspace {
+            root: std::path::PathBuf::from("."),
+            lab: crate::read::Lab::parse("lab.toml", &lab_text).unwrap(),
+            lab_text,
+            qc_text: None,
+            register: Register::parse("limits.csv", limits.as_bytes()).unwrap(),
+            specs: crate::read::Specs::parse("specs.csv", specs.as_bytes()).unwrap(),
+        }
+    }
+
+    const LIMITS: &str = "analyte,matrix,method,unit,mdl,loq,effective_from,upper_range,upper_range_unit\n\
+                          Pb,paint,6010D,ug/L,2,6,2025-01-01,1000,ug/L\n";
+    const SPECS: &str = "spec,analyte,matrix,limit,unit,citation,effective_from\n\
+                         P,Pb,paint,0.009,%,test limit,2009-01-01\n\
+                         L,Pb,paint,5,ug/L,liquid limit,2009-01-01\n";
+
+    fn resolved<'w>(row: &ResultRow, ws: &'w Workspace) -> Resolved<'w> {
+        match resolve(row, ws).unwrap() {
+            Resolution::Resolved(r) => r,
+            Resolution::Blocked(p) => panic!("blocked: {}", p.message),
+        }
+    }
+
+    // The upper range is the highest calibration standard: a reading above it
+    // is over range, one exactly at it is not (common practice, no source).
+    #[test]
+    fn over_range_starts_above_the_highest_standard() {
+        let ws = workspace(LIMITS, SPECS);
+        let at = resolved(&solid("1000", "1", "0.100", "50"), &ws);
+        assert!(!at.over_range);
+        // 1000 µg/L × 50 mL / 0.100 g / 1000 = 500 mg/kg
+        assert_eq!(at.upper, Some(d("500")));
+        let above = resolved(&solid("1000.001", "1", "0.100", "50"), &ws);
+        assert!(above.over_range);
+        let below = resolved(&solid("999", "1", "0.100", "50"), &ws);
+        assert!(!below.over_range);
+        // Dilution scales the range the sample could be reported over.
+        let diluted = resolved(&solid("10", "10", "0.100", "50"), &ws);
+        assert_eq!(diluted.upper, Some(d("5000")));
+    }
+
+    // 0.009 % = 90 mg/kg (1 % = 10,000 mg/kg, SI definition of the ratio).
+    #[test]
+    fn the_spec_in_force_is_converted_to_the_result_unit() {
+        let ws = workspace(LIMITS, SPECS);
+        let mut row = solid("50", "1", "0.100", "50");
+        row.spec = Some("P".into());
+        let r = resolved(&row, &ws);
+        let spec = r.spec.expect("spec P applies");
+        assert_eq!(spec.limit, d("90"));
+        assert_eq!(&*spec.row.citation, "test limit");
+        // A concentration limit cannot judge a mass fraction: an error at the spec row.
+        row.spec = Some("L".into());
+        let Err(e) = resolve(&row, &ws) else {
+            panic!("a concentration limit on a mass fraction must be refused");
+        };
+        assert!(
+            e.to_string().starts_with("specs.csv:3: field `unit`"),
+            "{e}"
+        );
+        assert!(e.hint().contains("mass fraction"), "{}", e.hint());
+        // An unknown spec blocks with a problem, not an error.
+        row.spec = Some("NOPE".into());
+        assert!(matches!(resolve(&row, &ws), Ok(Resolution::Blocked(_))));
+    }
+
+    #[test]
+    fn a_liquid_reading_cannot_take_mass_fraction_limits() {
+        let mut row = solid("5", "1", "0.1", "50");
+        row.mass_g = None;
+        row.volume_ml = None;
+        // A liquid keeps the reading's unit; mg/kg limits cannot be put in it.
+        assert_eq!(reading_to_sample(&row, d("2"), Unit::MgPerKg), Some(None));
+        assert_eq!(
+            reading_to_sample(&row, d("2"), Unit::MgPerL),
+            Some(Some(d("2000")))
+        );
+    }
+
+    #[test]
+    fn errors_carry_their_hints() {
+        let u = ResolveError::Units {
+            at: Loc::new("f", 1, "unit"),
+            problem: "p".into(),
+            hint: "give the unit".into(),
+        };
+        assert_eq!(u.hint(), "give the unit");
+        let o = ResolveError::Overflow {
+            at: Loc::new("f", 2, "reading"),
+            what: "the result",
+        };
+        assert!(o.hint().contains("far outside"), "{}", o.hint());
+        assert_eq!(
+            o.to_string(),
+            "f:2: field `reading`: arithmetic overflow computing the result"
+        );
+    }
 }

@@ -208,4 +208,35 @@ mod tests {
             assert_eq!(Unit::parse(u.symbol()), Some(u));
         }
     }
+
+    // Every unit reads back from the symbol it prints, and the hint lists
+    // exactly the spellings that parse (common practice, no source).
+    #[test]
+    fn symbols_parse_back_and_the_hint_lists_every_spelling() {
+        for unit in Unit::ALL {
+            assert_eq!(Unit::parse(unit.symbol()), Some(unit), "{unit}");
+            assert_eq!(unit.to_string(), unit.symbol());
+        }
+        let hint = Unit::accepted();
+        let spellings: Vec<&str> = hint
+            .split(", ")
+            .flat_map(|s| s.split(" ("))
+            .map(|s| s.trim_end_matches(')'))
+            .collect();
+        assert!(spellings.len() >= Unit::ALL.len(), "{hint}");
+        for s in &spellings {
+            assert!(
+                Unit::parse(s).is_some(),
+                "hint lists `{s}`, which does not parse"
+            );
+        }
+        for unit in Unit::ALL {
+            assert!(
+                spellings.iter().any(|s| Unit::parse(s) == Some(unit)),
+                "hint omits {unit}"
+            );
+        }
+        assert_eq!(Unit::parse("ug/mL"), Some(Unit::UgPerMl));
+        assert_eq!(Unit::parse("UG/ML"), Some(Unit::UgPerMl));
+    }
 }

@@ -12,10 +12,24 @@ fn graph(dir: &Path, root: &Path, parent: Option<&str>) -> BTreeMap<String, BTre
     let mut files = Vec::new();
     collect(dir, &mut files);
     for f in files {
-        let rel = f.strip_prefix(root).unwrap().to_string_lossy().replace('\\', "/");
+        let rel = f
+            .strip_prefix(root)
+            .unwrap()
+            .to_string_lossy()
+            .replace('\\', "/");
         let module = match parent {
-            None => rel.split('/').next().unwrap().trim_end_matches(".rs").to_string(),
-            Some(_) => rel.trim_end_matches(".rs").split('/').next().unwrap().to_string(),
+            None => rel
+                .split('/')
+                .next()
+                .unwrap()
+                .trim_end_matches(".rs")
+                .to_string(),
+            Some(_) => rel
+                .trim_end_matches(".rs")
+                .split('/')
+                .next()
+                .unwrap()
+                .to_string(),
         };
         let text = std::fs::read_to_string(&f).unwrap();
         let code = text.split("#[cfg(test)]").next().unwrap();
@@ -115,7 +129,11 @@ fn the_module_graph_has_no_loop() {
     assert_eq!(find_loop(&g), None, "modules import each other: {g:#?}");
     let read = graph(&src().join("read"), &src().join("read"), Some("read"));
     assert!(read.contains_key("batch") && read.contains_key("vocab"));
-    assert_eq!(find_loop(&read), None, "readers import each other: {read:#?}");
+    assert_eq!(
+        find_loop(&read),
+        None,
+        "readers import each other: {read:#?}"
+    );
 }
 
 #[test]
@@ -173,7 +191,11 @@ fn only_the_binary_touches_stdout_argv_and_exit() {
     collect(&src(), &mut files);
     let mut checked = 0;
     for f in files {
-        let rel = f.strip_prefix(src()).unwrap().to_string_lossy().into_owned();
+        let rel = f
+            .strip_prefix(src())
+            .unwrap()
+            .to_string_lossy()
+            .into_owned();
         if rel.starts_with("cmd") || rel == "main.rs" {
             continue;
         }
