@@ -61,6 +61,8 @@ impl Unit {
             "ppm" => Unit::Ppm,
             "ppb" => Unit::Ppb,
             "ug/kg" => Unit::UgPerKg,
+            // Unreachable after the exact match above ("%" has no case);
+            // kept so the table lists every unit.
             "%" => Unit::Percent,
             "ug/l" => Unit::UgPerL,
             "mg/l" => Unit::MgPerL,
@@ -236,7 +238,32 @@ mod tests {
                 "hint omits {unit}"
             );
         }
-        assert_eq!(Unit::parse("ug/mL"), Some(Unit::UgPerMl));
-        assert_eq!(Unit::parse("UG/ML"), Some(Unit::UgPerMl));
+        for (text, unit) in [
+            ("ug/mL", Unit::UgPerMl),
+            ("UG/ML", Unit::UgPerMl),
+            ("MG/KG", Unit::MgPerKg),
+            ("UG/G", Unit::UgPerG),
+            ("PPM", Unit::Ppm),
+            ("PPB", Unit::Ppb),
+            ("UG/KG", Unit::UgPerKg),
+            ("\u{03BC}g/kg", Unit::UgPerKg),
+            ("ug/l", Unit::UgPerL),
+            ("MG/L", Unit::MgPerL),
+            ("NG/ML", Unit::NgPerMl),
+            (" mg/l ", Unit::MgPerL),
+        ] {
+            assert_eq!(Unit::parse(text), Some(unit), "`{text}`");
+        }
+        assert_eq!(Unit::parse("mg/g"), None);
+    }
+
+    // Units with the same factor convert without arithmetic, so the digits
+    // the value was given with are kept: 2.50 mg/L is 2.50 µg/mL.
+    #[test]
+    fn equal_factors_keep_the_given_digits() {
+        let c = convert(d("2.50"), Unit::MgPerL, Unit::UgPerMl).unwrap();
+        assert_eq!(c.to_string(), "2.50");
+        let c = convert(d("0.600"), Unit::Ppm, Unit::UgPerG).unwrap();
+        assert_eq!(c.to_string(), "0.600");
     }
 }
