@@ -281,10 +281,16 @@ struct Batch<'a> {
     /// Sample index by (lab id, lower-case analyte); built only when a spike
     /// or duplicate needs its parent.
     by_id: HashMap<(&'a str, String), usize>,
+    /// Samples that could not be evaluated (no limits or spec in force):
+    /// their own problem already holds the batch.
+    blocked: &'a [Problem],
 }
 
 impl Batch<'_> {
-    fn parent_of(&self, q: &ResultRow) -> Result<usize, EvalError> {
+    /// The parent sample of a spike or duplicate; None when the parent is
+    /// itself blocked, so the check cannot be made (and need not be: the
+    /// parent's problem holds the batch).
+    fn parent_of(&self, q: &ResultRow) -> Result<Option<usize>, EvalError> {
         let Some(pid) = &q.parent_id else {
             return Err(EvalError::Read(ReadError::field(
                 q.loc("parent_id"),
@@ -295,16 +301,21 @@ impl Batch<'_> {
                 "give the lab id of the parent sample",
             )));
         };
-        self.by_id
-            .get(&(pid.as_str(), lower(&q.analyte)))
-            .copied()
-            .ok_or_else(|| {
-                EvalError::Read(ReadError::field(
-                    q.loc("parent_id"),
-                    format!("{pid} has no {} sample result in this batch", q.analyte),
-                    "the parent must be a sample row of the same analyte in this results file",
-                ))
-            })
+        if let Some(&i) = self.by_id.get(&(pid.as_str(), lower(&q.analyte))) {
+            return Ok(Some(i));
+        }
+        if self
+            .blocked
+            .iter()
+            .any(|p| p.lab_id == *pid && same(&p.analyte, &q.analyte))
+        {
+            return Ok(None);
+        }
+        Err(EvalError::Read(ReadError::field(
+            q.loc("parent_id"),
+            format!("{pid} has no {} sample result in this batch", q.analyte),
+            "the parent must be a sample row of the same analyte in this results file",
+        )))
     }
 }
 
@@ -339,6 +350,7 @@ pub fn evaluate(
     results_file: &str,
     qc_rows: &[ResultRow],
     rows: &mut [ReportRow],
+    blocked: &[Problem],
 ) -> Result<QcResult, EvalError> {
     // Only spikes and duplicates look samples up by id.
     let needs_parents = qc_rows.iter().any(|q| {
@@ -362,6 +374,7 @@ pub fn evaluate(
         qc_rows,
         rows,
         by_id,
+        blocked,
     };
     let mut out = Found::default();
     method_blanks(&b, &mut out)?;
@@ -564,7 +577,9 @@ fn matrix_spikes(
     {
         let c = b.config.for_method(&q.method);
         let spike = required_spike(q)?;
-        let p = b.parent_of(q)?;
+        let Some(p) = b.parent_of(q)? else {
+            continue;
+        };
         let Some(m) = prepared(b.ws, q)? else {
             out.problems.push(no_limits(q));
             continue;
@@ -686,7 +701,9 @@ fn spike_pairs(
 fn duplicates(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
     for q in b.qc_rows.iter().filter(|q| q.kind == Kind::Duplicate) {
         let c = b.config.for_method(&q.method);
-        let p = b.parent_of(q)?;
+        let Some(p) = b.parent_of(q)? else {
+            continue;
+        };
         let Some(m) = prepared(b.ws, q)? else {
             out.problems.push(no_limits(q));
             continue;

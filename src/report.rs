@@ -188,7 +188,7 @@ pub fn build(
         Ok::<(), EvalError>(())
     })?;
     rows.shrink_to_fit();
-    let evaluated = crate::qc::evaluate(ws, &batch.results_file, &qc, &mut rows)?;
+    let evaluated = crate::qc::evaluate(ws, &batch.results_file, &qc, &mut rows, &problems)?;
     let mut header = header;
     for r in &rows {
         if !header.methods.iter().any(|(m, _)| m.as_str() == &*r.method) {

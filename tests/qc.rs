@@ -362,3 +362,36 @@ fn windows_come_from_the_workspace() {
     let r = t.limen(&["check", "ws/b1"]);
     assert_eq!(r.code, 2, "QC windows in two places are refused");
 }
+
+#[test]
+fn a_spike_on_a_sample_without_limits_is_held_not_an_input_error() {
+    // The parent has no register row: its own problem holds the batch, and
+    // the spike on it is not mistaken for a spike without a parent.
+    let t = TestDir::new("qc-blocked-parent");
+    t.demo_workspace("ws");
+    let path = "ws/furniture-jewellery-2611-041/results.csv";
+    let text = t.read(path);
+    let parent = text
+        .lines()
+        .find(|l| l.contains(",matrix-spike,"))
+        .and_then(|l| l.split(',').nth(16))
+        .expect("the demo has a matrix spike")
+        .to_string();
+    // Move the parent sample's rows to a method the register does not know.
+    let changed: String = text
+        .lines()
+        .map(|l| {
+            if l.starts_with(&format!("{parent},")) && l.contains(",sample,") {
+                l.replace(",6010D,", ",6010X,")
+            } else {
+                l.to_string()
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    t.write(path, changed + "\n");
+    let r = t.limen(&["check", "ws/furniture-jewellery-2611-041"]);
+    assert_eq!(r.code, 3, "{}\n{}", r.stdout, r.stderr);
+    assert!(r.stdout.contains("no limits"), "{}", r.stdout);
+    assert!(!r.stderr.contains("has no"), "{}", r.stderr);
+}

@@ -334,6 +334,21 @@ impl Batch {
         let manifest = Manifest::parse(&manifest_file, &manifest_text)?;
         let results_path = dir.join(&manifest.results);
         let results_file = results_path.display().to_string();
+        if !results_path.is_file() {
+            // Point at the line that names the file, not only at the missing file.
+            let line = manifest_text
+                .lines()
+                .position(|l| l.trim_start().starts_with("results"))
+                .map_or(0, |i| i as u64 + 1);
+            return Err(ReadError::field(
+                Loc::new(&manifest_file, line, "results"),
+                format!(
+                    "names `{}`, but {results_file} is not a file",
+                    manifest.results
+                ),
+                "give the results CSV's file name, relative to the batch folder",
+            ));
+        }
         let results_bytes = read_file(&results_path)?;
         Ok(Batch {
             dir: dir.to_path_buf(),
