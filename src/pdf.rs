@@ -217,36 +217,38 @@ fn text_ops(
 }
 
 /// Writes pages to PDF bytes. Characters the font lacks are drawn as "?"
-/// and returned, so the caller can say so.
-pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfError> {
-    if pages.is_empty() {
-        return Err(PdfError::NoPages);
-    }
-    let fonts = Fonts::get()?;
+/// The text as the embedded font can show it: characters it lacks become
+/// '?' and are collected for the warning.
+fn shown_text(fonts: &Fonts, text: &str, bold: bool, missing: &mut BTreeSet<char>) -> String {
+    clean(text)
+        .chars()
+        .map(|c| {
+            if fonts.face(bold).has(c) || c == ' ' {
+                c
+            } else {
+                missing.insert(c);
+                '?'
+            }
+        })
+        .collect()
+}
+
+/// Embeds, per face, a subset holding just the characters the pages use.
+fn embed_fonts(
+    doc: &mut PdfDocument,
+    pages: &[Page],
+    fonts: &Fonts,
+    ids: &[FontId; 2],
+) -> Result<(), PdfError> {
     let mut used: [BTreeSet<char>; 2] = [BTreeSet::new(), BTreeSet::new()];
-    let mut missing = BTreeSet::new();
-    let shown = |text: &str, bold: bool, missing: &mut BTreeSet<char>| -> String {
-        clean(text)
-            .chars()
-            .map(|c| {
-                if fonts.face(bold).has(c) || c == ' ' {
-                    c
-                } else {
-                    missing.insert(c);
-                    '?'
-                }
-            })
-            .collect()
-    };
+    let mut ignored = BTreeSet::new();
     for p in pages {
         for it in &p.items {
             if let Item::Text { text, bold, .. } = it {
-                used[*bold as usize].extend(shown(text, *bold, &mut missing).chars());
+                used[*bold as usize].extend(shown_text(fonts, text, *bold, &mut ignored).chars());
             }
         }
     }
-    let mut doc = PdfDocument::new(&meta.title);
-    let ids = [FontId("F1".into()), FontId("F2".into())];
     for (k, set) in used.iter().enumerate() {
         if !set.is_empty() {
             let face = fonts.face(k == 1);
@@ -256,6 +258,74 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
                 .insert(ids[k].clone(), PdfFont::new(face.subset(set)?));
         }
     }
+    Ok(())
+}
+
+/// A stroked line between two points, in PDF coordinates.
+fn line_ops(a: (f32, f32), b: (f32, f32), width: f32, color: (f32, f32, f32)) -> [Op; 3] {
+    let point = |(x, y): (f32, f32)| LinePoint {
+        p: Point { x: Pt(x), y: Pt(y) },
+        bezier: false,
+    };
+    [
+        Op::SetOutlineColor { col: rgb(color) },
+        Op::SetOutlineThickness { pt: Pt(width) },
+        Op::DrawLine {
+            line: Line {
+                points: vec![point(a), point(b)],
+                is_closed: false,
+            },
+        },
+    ]
+}
+
+/// A filled rectangle from its lower-left corner, in PDF coordinates.
+fn rect_ops(x: f32, y: f32, w: f32, h: f32, color: (f32, f32, f32)) -> [Op; 2] {
+    [
+        Op::SetFillColor { col: rgb(color) },
+        Op::DrawRectangle {
+            rectangle: Rect {
+                x: Pt(x),
+                y: Pt(y),
+                width: Pt(w),
+                height: Pt(h),
+                mode: Some(PaintMode::Fill),
+                winding_order: None,
+            },
+        },
+    ]
+}
+
+/// The document information: title, author, dates from the report.
+fn set_info(doc: &mut PdfDocument, meta: &Meta) -> Result<(), PdfError> {
+    let date = printpdf::date::OffsetDateTime::from_unix_timestamp(meta.created)
+        .map_err(|e| PdfError::Font(e.to_string()))?;
+    let info = &mut doc.metadata.info;
+    info.document_title = meta.title.clone();
+    info.author = meta.author.clone();
+    info.subject = meta.subject.clone();
+    info.creator = meta.creator.clone();
+    info.producer = meta.creator.clone();
+    info.identifier = meta.title.clone();
+    info.creation_date = date;
+    info.modification_date = date;
+    info.metadata_date = date;
+    Ok(())
+}
+
+/// and returned, so the caller can say so.
+pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfError> {
+    if pages.is_empty() {
+        return Err(PdfError::NoPages);
+    }
+    let fonts = Fonts::get()?;
+    let mut missing = BTreeSet::new();
+    let shown = |text: &str, bold: bool, missing: &mut BTreeSet<char>| -> String {
+        shown_text(fonts, text, bold, missing)
+    };
+    let mut doc = PdfDocument::new(&meta.title);
+    let ids = [FontId("F1".into()), FontId("F2".into())];
+    embed_fonts(&mut doc, pages, fonts, &ids)?;
     for (n, p) in pages.iter().enumerate() {
         let page_no = n + 1;
         finite(page_no, "page size", &[p.width, p.height])?;
@@ -294,29 +364,7 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
                     color,
                 } => {
                     finite(page_no, "line", &[*x1, *y1, *x2, *y2, *width])?;
-                    ops.push(Op::SetOutlineColor { col: rgb(*color) });
-                    ops.push(Op::SetOutlineThickness { pt: Pt(*width) });
-                    ops.push(Op::DrawLine {
-                        line: Line {
-                            points: vec![
-                                LinePoint {
-                                    p: Point {
-                                        x: Pt(*x1),
-                                        y: Pt(h - *y1),
-                                    },
-                                    bezier: false,
-                                },
-                                LinePoint {
-                                    p: Point {
-                                        x: Pt(*x2),
-                                        y: Pt(h - *y2),
-                                    },
-                                    bezier: false,
-                                },
-                            ],
-                            is_closed: false,
-                        },
-                    });
+                    ops.extend(line_ops((*x1, h - *y1), (*x2, h - *y2), *width, *color));
                 }
                 Item::Rect {
                     x,
@@ -326,35 +374,14 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
                     color,
                 } => {
                     finite(page_no, "rectangle", &[*x, *y, *w, *rh])?;
-                    ops.push(Op::SetFillColor { col: rgb(*color) });
-                    ops.push(Op::DrawRectangle {
-                        rectangle: Rect {
-                            x: Pt(*x),
-                            y: Pt(h - *y - *rh),
-                            width: Pt(*w),
-                            height: Pt(*rh),
-                            mode: Some(PaintMode::Fill),
-                            winding_order: None,
-                        },
-                    });
+                    ops.extend(rect_ops(*x, h - *y - *rh, *w, *rh, *color));
                 }
             }
         }
         let mm = |pt: f32| printpdf::Mm(pt * 25.4 / 72.0);
         doc.pages.push(PdfPage::new(mm(p.width), mm(p.height), ops));
     }
-    let date = printpdf::date::OffsetDateTime::from_unix_timestamp(meta.created)
-        .map_err(|e| PdfError::Font(e.to_string()))?;
-    let info = &mut doc.metadata.info;
-    info.document_title = meta.title.clone();
-    info.author = meta.author.clone();
-    info.subject = meta.subject.clone();
-    info.creator = meta.creator.clone();
-    info.producer = meta.creator.clone();
-    info.identifier = meta.title.clone();
-    info.creation_date = date;
-    info.modification_date = date;
-    info.metadata_date = date;
+    set_info(&mut doc, meta)?;
     let mut warnings = Vec::new();
     let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
     fix_document_id(&mut bytes);

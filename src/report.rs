@@ -164,23 +164,7 @@ pub fn build(
                 }
                 let over_range = r.over_range;
                 if over_range {
-                    problems.push(Problem {
-                        at: row.loc("reading"),
-                        lab_id: row.lab_id.clone(),
-                        analyte: row.analyte.clone(),
-                        kind: ProblemKind::OverRange,
-                        message: format!(
-                            "reading {} {} is above the calibrated range (highest standard {}, {})",
-                            row.reading,
-                            row.reading_unit,
-                            r.limits
-                                .upper_range
-                                .map(|(v, u)| format!("{} {u}", crate::numeric::plain(v)))
-                                .unwrap_or_default(),
-                            r.limits.reference.clone()
-                        ),
-                        hint: "dilute the digest into the calibrated range and re-analyse".into(),
-                    });
+                    problems.push(over_range_problem(&row, &r));
                 }
                 rows.push(classify_row(row, &r, &header, lab.not_detected_style)?);
             }
@@ -190,17 +174,7 @@ pub fn build(
     rows.shrink_to_fit();
     let evaluated = crate::qc::evaluate(ws, &batch.results_file, &qc, &mut rows, &problems)?;
     let mut header = header;
-    for r in &rows {
-        if !header.methods.iter().any(|(m, _)| m.as_str() == &*r.method) {
-            let description = lab
-                .methods
-                .iter()
-                .find(|(id, _)| id.eq_ignore_ascii_case(&r.method))
-                .map(|(_, d)| d.clone())
-                .unwrap_or_default();
-            header.methods.push((r.method.to_string(), description));
-        }
-    }
+    header.methods = methods_used(&lab.methods, &rows);
     problems.extend(evaluated.problems);
     Ok(Report {
         header,
@@ -224,31 +198,7 @@ fn classify_row(
     let state = classify::state(r.value, r.mdl, r.loq, r.over_range);
     let rounded = round_sig(r.value, sig);
     let (mdl, loq) = (round_sig(r.mdl, sig), round_sig(r.loq, sig));
-    let verdict = match &r.spec {
-        None => None,
-        Some(spec) => {
-            let reported = header.compare == Compare::Reported;
-            let c = Comparison {
-                state,
-                value: if reported { rounded } else { r.value },
-                mdl: if reported { mdl } else { r.mdl },
-                loq: if reported { loq } else { r.loq },
-                upper: r.upper,
-                limit: spec.limit,
-                uncertainty_pct: row.uncertainty_pct,
-            };
-            Some(
-                classify::verdict(&c, header.decision_rule).map_err(|e| match e {
-                    VerdictError::NoUncertainty => EvalError::NoUncertainty {
-                        at: row.loc("uncertainty_pct"),
-                    },
-                    VerdictError::Overflow => EvalError::Overflow {
-                        at: row.loc("reading"),
-                    },
-                })?,
-            )
-        }
-    };
+    let verdict = verdict_of(&row, r, header, state, (rounded, mdl, loq))?;
     let uncertainty = match (state, row.uncertainty_pct) {
         (State::Quantified, Some(pct)) => Some(classify::reported_uncertainty(
             classify::expanded_uncertainty(r.value, pct).ok_or_else(|| EvalError::Overflow {
@@ -307,4 +257,86 @@ fn classify_row(
         qualifiers: Vec::new(),
         limits_row: r.limits.reference.clone(),
     })
+}
+
+/// The verdict against the spec in force, from the unrounded or the
+/// reported numbers as the lab compares; None without a spec.
+fn verdict_of(
+    row: &ResultRow,
+    r: &resolve::Resolved<'_>,
+    header: &Header,
+    state: State,
+    (rounded, mdl, loq): (
+        rust_decimal::Decimal,
+        rust_decimal::Decimal,
+        rust_decimal::Decimal,
+    ),
+) -> Result<Option<classify::Verdict>, EvalError> {
+    Ok(match &r.spec {
+        None => None,
+        Some(spec) => {
+            let reported = header.compare == Compare::Reported;
+            let c = Comparison {
+                state,
+                value: if reported { rounded } else { r.value },
+                mdl: if reported { mdl } else { r.mdl },
+                loq: if reported { loq } else { r.loq },
+                upper: r.upper,
+                limit: spec.limit,
+                uncertainty_pct: row.uncertainty_pct,
+            };
+            Some(
+                classify::verdict(&c, header.decision_rule).map_err(|e| match e {
+                    VerdictError::NoUncertainty => EvalError::NoUncertainty {
+                        at: row.loc("uncertainty_pct"),
+                    },
+                    VerdictError::Overflow => EvalError::Overflow {
+                        at: row.loc("reading"),
+                    },
+                })?,
+            )
+        }
+    })
+}
+
+/// A reading above the calibrated range holds the batch until diluted and
+/// re-analysed.
+fn over_range_problem(row: &ResultRow, r: &resolve::Resolved<'_>) -> Problem {
+    Problem {
+        at: row.loc("reading"),
+        lab_id: row.lab_id.clone(),
+        analyte: row.analyte.clone(),
+        kind: ProblemKind::OverRange,
+        message: format!(
+            "reading {} {} is above the calibrated range (highest standard {}, {})",
+            row.reading,
+            row.reading_unit,
+            r.limits
+                .upper_range
+                .map(|(v, u)| format!("{} {u}", crate::numeric::plain(v)))
+                .unwrap_or_default(),
+            r.limits.reference.clone()
+        ),
+        hint: "dilute the digest into the calibrated range and re-analyse".into(),
+    }
+}
+
+/// Each method the results use, in first-use order, with its description
+/// from lab.toml.
+fn methods_used(
+    lab_methods: &std::collections::BTreeMap<String, String>,
+    rows: &[ReportRow],
+) -> Vec<(String, String)> {
+    let mut methods: Vec<(String, String)> = Vec::new();
+    for r in rows {
+        if !methods.iter().any(|(m, _)| m.as_str() == &*r.method) {
+            let description = lab_methods
+                .iter()
+                .find(|(id, _)| id.eq_ignore_ascii_case(&r.method))
+                .map(|(_, d)| d.clone())
+                .unwrap_or_default();
+            methods.push((r.method.to_string(), description));
+        }
+    }
+    methods
 }
