@@ -61,13 +61,40 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let templates = Templates::load(Some(&ws_dir))?;
     let (mut ledger, _) = Ledger::open(&ws_dir)?;
     let run = run_info()?;
-    let colour = colour_stdout();
     println!("limen demo: {} (an invented lab and client)", ws.lab.name);
 
+    issue_batches(&ws, &mut ledger, &templates, &reports_dir, &run)?;
+    study_step(&ws, &ws_dir, &reports_dir, &run)?;
+    let ws = Workspace::load(&ws_dir)?;
+    let reissued = impact_and_reissue(&ws, &mut ledger, &templates, &reports_dir, &run)?;
+    verify_step(&ledger, &reports_dir, &reissued)?;
+
+    println!("workspace: {} (ledger: ledger.sqlite)", ws_dir.display());
+    println!("reports:   {}", reports_dir.display());
+    let mut files: Vec<_> = std::fs::read_dir(&reports_dir)
+        .map(|d| d.flatten().map(|e| e.path()).collect())
+        .unwrap_or_default();
+    files.sort();
+    for p in files {
+        println!("  {}", p.display());
+    }
+    Ok(EXIT_OK)
+}
+
+/// Step 1: check each demo batch and issue the clean ones.
+fn issue_batches(
+    ws: &Workspace,
+    ledger: &mut Ledger,
+    templates: &Templates,
+    reports_dir: &Path,
+    run: &limen::RunInfo,
+) -> Result<(), Error> {
+    let colour = colour_stdout();
+    let ws_dir = &ws.root;
     step("1. check and issue the client batches");
     for name in limen::starter::DEMO_BATCHES {
         let batch = Batch::load(&ws_dir.join(name))?;
-        let mut report = limen::report::build(&ws, &batch, 0, &run)?;
+        let mut report = limen::report::build(ws, &batch, 0, run)?;
         println!("$ limen check {}", ws_dir.join(name).display());
         print!("{}", limen::render::table::render(&report, colour));
         if report.is_blocked() {
@@ -76,14 +103,13 @@ pub fn run(a: Args) -> Result<i32, Error> {
         }
         let record = Record {
             rendered: None,
-            snapshot: snapshot(&ws, &batch, &report),
+            snapshot: snapshot(ws, &batch, &report),
             local_offset: ws.lab.utc_offset.to_string(),
             reason: String::new(),
             changed: Vec::new(),
-            templates: &templates,
+            templates,
         };
-        let (paths, warnings) =
-            issue_recorded(&mut ledger, &reports_dir, &mut report, record, None)?;
+        let (paths, warnings) = issue_recorded(ledger, reports_dir, &mut report, record, None)?;
         for w in warnings {
             eprintln!("warning: {w}");
         }
@@ -93,6 +119,16 @@ pub fn run(a: Args) -> Result<i32, Error> {
         println!();
     }
 
+    Ok(())
+}
+
+/// Step 2: the cadmium study, its record, and the register rows it adds.
+fn study_step(
+    ws: &Workspace,
+    ws_dir: &Path,
+    reports_dir: &Path,
+    run: &limen::RunInfo,
+) -> Result<(), Error> {
     let (study_file, study_id, effective) = limen::starter::DEMO_STUDY;
     step("2. a new limit study corrects the register");
     let study_path = ws_dir.join(study_file);
@@ -121,7 +157,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         run.issued_at.timestamp(),
         &run.tool_version,
     )?;
-    let record_path = limen::output::write_new(&reports_dir, "study-record-cd-paint.pdf", &record)?;
+    let record_path = limen::output::write_new(reports_dir, "study-record-cd-paint.pdf", &record)?;
     println!("-> study record {}", record_path.display());
     let effective_date = limen::read::csvtable::parse_date(effective).unwrap_or_default();
     let rows = limen::study::register_update::rows_for(
@@ -136,9 +172,21 @@ pub fn run(a: Args) -> Result<i32, Error> {
         println!("-> register row added: {}", r.describe());
     }
 
+    Ok(())
+}
+
+/// Steps 3 and 4: which issued reports the correction affects, and their
+/// re-issue. Returns each re-issued report with its new files.
+fn impact_and_reissue(
+    ws: &Workspace,
+    ledger: &mut Ledger,
+    templates: &Templates,
+    reports_dir: &Path,
+    run: &limen::RunInfo,
+) -> Result<Vec<(String, Vec<PathBuf>)>, Error> {
+    let (_, study_id, effective) = limen::starter::DEMO_STUDY;
     step("3. which issued reports does the change affect?");
-    let ws = Workspace::load(&ws_dir)?;
-    println!("$ limen impact --workspace {}\n", ws_dir.display());
+    println!("$ limen impact --workspace {}\n", ws.root.display());
     let against = Against {
         root: &ws.root,
         register: &ws.register,
@@ -146,7 +194,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         lab: None,
         manifest: None,
     };
-    let (checked, affected, _) = impact(&ledger, &against, None, &run)?;
+    let (checked, affected, _) = impact(ledger, &against, None, run)?;
     print!(
         "{}",
         super::impact::table(checked, &affected, &ws.register.file, &ws.specs.file)
@@ -166,10 +214,10 @@ pub fn run(a: Args) -> Result<i32, Error> {
         let req = ReissueRequest {
             report: &i.issued.report,
             reason: &reason,
-            out: &reports_dir,
+            out: reports_dir,
             force: false,
             local_offset: ws.lab.utc_offset.to_string(),
-            templates: &templates,
+            templates,
             fault: None,
         };
         if let Reissued::Issued {
@@ -177,7 +225,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             paths,
             changes,
             ..
-        } = reissue(&mut ledger, &against, &req, &run)?
+        } = reissue(ledger, &against, &req, run)?
         {
             println!(
                 "-> revision {revision}, {} result(s) changed:",
@@ -193,8 +241,17 @@ pub fn run(a: Args) -> Result<i32, Error> {
         }
     }
 
+    Ok(reissued)
+}
+
+/// Step 5: both revisions of each re-issued report verify.
+fn verify_step(
+    ledger: &Ledger,
+    reports_dir: &Path,
+    reissued: &[(String, Vec<PathBuf>)],
+) -> Result<(), Error> {
     step("5. verify both revisions");
-    for (report, paths) in &reissued {
+    for (report, paths) in reissued {
         let old = reports_dir.join(format!("{report}.pdf"));
         for p in std::iter::once(&old).chain(
             paths
@@ -205,19 +262,10 @@ pub fn run(a: Args) -> Result<i32, Error> {
             println!("$ limen verify {}", p.display());
             println!(
                 "{}\n",
-                limen::ledger::verify_file(&ledger, &bytes)?.describe(&p.display().to_string())
+                limen::ledger::verify_file(ledger, &bytes)?.describe(&p.display().to_string())
             );
         }
     }
 
-    println!("workspace: {} (ledger: ledger.sqlite)", ws_dir.display());
-    println!("reports:   {}", reports_dir.display());
-    let mut files: Vec<_> = std::fs::read_dir(&reports_dir)
-        .map(|d| d.flatten().map(|e| e.path()).collect())
-        .unwrap_or_default();
-    files.sort();
-    for p in files {
-        println!("  {}", p.display());
-    }
-    Ok(EXIT_OK)
+    Ok(())
 }

@@ -28,38 +28,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let run = run_info()?;
     let fault = super::fault()?;
     let progress = Progress::new(a.batches.len() as u64 * 2);
-    // (report, batch, index of its workspace)
-    let mut reports: Vec<(limen::Report, Batch, usize)> = Vec::new();
-    // Batches of one workspace share its files, read once.
-    let mut workspaces: Vec<(PathBuf, Workspace, Templates)> = Vec::new();
-    for dir in &a.batches {
-        progress.step(&format!("checking {}", dir.display()));
-        let root = match &a.workspace {
-            Some(w) => w.clone(),
-            None => Workspace::find(dir)?,
-        };
-        let k = match workspaces.iter().position(|(r, _, _)| *r == root) {
-            Some(k) => k,
-            None => {
-                let ws = Workspace::load(&root)?;
-                let t = Templates::load(Some(&ws.root))?;
-                workspaces.push((root, ws, t));
-                workspaces.len() - 1
-            }
-        };
-        let batch = Batch::load(dir)?;
-        let mut report = limen::report::build(&workspaces[k].1, &batch, 0, &run)?;
-        if let Some(reason) = &a.accept_qc {
-            if reason.trim().is_empty() {
-                return Err(Error::Usage {
-                    message: "--accept-qc needs a reason".into(),
-                    hint: "say why the QC exception is acceptable, e.g. --accept-qc \"LCS high bias; all results ND\"".into(),
-                });
-            }
-            report.accept_qc(reason);
-        }
-        reports.push((report, batch, k));
-    }
+    let (reports, workspaces) = evaluate(&a, &run, &progress)?;
     let blocked: Vec<_> = reports
         .iter()
         .map(|r| &r.0)
@@ -165,4 +134,47 @@ impl Progress {
             bar.finish_and_clear();
         }
     }
+}
+
+type Evaluated = (
+    Vec<(limen::Report, Batch, usize)>,
+    Vec<(PathBuf, Workspace, Templates)>,
+);
+
+/// Each batch evaluated against its workspace (read once for all its
+/// batches), with held QC accepted when the analyst says why.
+fn evaluate(a: &Args, run: &limen::RunInfo, progress: &Progress) -> Result<Evaluated, Error> {
+    // (report, batch, index of its workspace)
+    let mut reports: Vec<(limen::Report, Batch, usize)> = Vec::new();
+    // Batches of one workspace share its files, read once.
+    let mut workspaces: Vec<(PathBuf, Workspace, Templates)> = Vec::new();
+    for dir in &a.batches {
+        progress.step(&format!("checking {}", dir.display()));
+        let root = match &a.workspace {
+            Some(w) => w.clone(),
+            None => Workspace::find(dir)?,
+        };
+        let k = match workspaces.iter().position(|(r, _, _)| *r == root) {
+            Some(k) => k,
+            None => {
+                let ws = Workspace::load(&root)?;
+                let t = Templates::load(Some(&ws.root))?;
+                workspaces.push((root, ws, t));
+                workspaces.len() - 1
+            }
+        };
+        let batch = Batch::load(dir)?;
+        let mut report = limen::report::build(&workspaces[k].1, &batch, 0, run)?;
+        if let Some(reason) = &a.accept_qc {
+            if reason.trim().is_empty() {
+                return Err(Error::Usage {
+                    message: "--accept-qc needs a reason".into(),
+                    hint: "say why the QC exception is acceptable, e.g. --accept-qc \"LCS high bias; all results ND\"".into(),
+                });
+            }
+            report.accept_qc(reason);
+        }
+        reports.push((report, batch, k));
+    }
+    Ok((reports, workspaces))
 }

@@ -85,11 +85,17 @@ pub fn run(a: Args) -> Result<i32, Error> {
         templates: &templates,
         fault: super::fault()?,
     };
-    match reissue(&mut ledger, &against, &req, &run)? {
+    let outcome = reissue(&mut ledger, &against, &req, &run)?;
+    tell(&a.report, outcome)
+}
+
+/// What the re-issue did, in words, and its exit code.
+fn tell(report_id: &str, outcome: Reissued) -> Result<i32, Error> {
+    match outcome {
         Reissued::Blocked { report } => {
             eprintln!(
                 "error: {} revision {} would be blocked; nothing was issued",
-                a.report, report.header.revision
+                report_id, report.header.revision
             );
             for p in &report.problems {
                 eprintln!("  - {p}\n    hint: {}", p.hint);
@@ -111,7 +117,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             paths,
             warnings,
         } => {
-            println!("{} revision {replaces} -> revision {revision}", a.report);
+            println!("{} revision {replaces} -> revision {revision}", report_id);
             if changes.is_empty() {
                 println!("  no result changes");
             }
@@ -123,7 +129,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             }
             println!(
                 "issued {} revision {revision} (replaces revision {replaces}; {} result(s) changed): {}",
-                a.report,
+                report_id,
                 changes.len(),
                 paths
                     .iter()

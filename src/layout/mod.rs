@@ -392,6 +392,9 @@ impl<'m> Flow<'m> {
 
     /// Lays a table out; its header repeats at the top of every page it
     /// reaches, and no row is split across pages.
+    // Long (about 95 lines) on purpose: measuring, paginating and drawing
+    // share the column geometry and the header height; split, each part
+    // would need all of it passed in.
     pub fn table(&mut self, table: &Table) {
         let ncol = table.columns.len();
         // The decimal point's x in each decimal column, relative to the page.

@@ -464,6 +464,8 @@ impl Ledger {
 
     /// Records an issue as pending, in one immediate transaction; refuses a
     /// revision 0 whose report number exists, or a revision already taken.
+    // Long (about 95 lines) on purpose: every statement of the transaction
+    // stays in one place, so what commits together can be read at once.
     pub fn begin(&mut self, rec: &NewRecord<'_>) -> Result<i64, LedgerError> {
         let path = self.path.clone();
         let err = sql_error(&path);

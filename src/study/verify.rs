@@ -95,6 +95,24 @@ pub fn verify(group: &Group, register: &Register, opts: &Options) -> VerifyResul
             (Some(ratio), above, keep)
         }
     };
+    let thin_quarters = thin_quarters(&window, to);
+    VerifyResult {
+        result,
+        from,
+        to,
+        existing,
+        ratio,
+        blanks_above,
+        blanks_total,
+        keep,
+        reasons,
+        thin_quarters,
+    }
+}
+
+/// Calendar quarters of the window with fewer than 2 spikes: Appendix B
+/// asks for spikes spread through the year.
+fn thin_quarters(window: &Group, to: chrono::NaiveDate) -> Vec<(String, usize)> {
     let mut quarters: BTreeMap<(i32, u32), usize> = BTreeMap::new();
     let first = window
         .rows
@@ -112,21 +130,9 @@ pub fn verify(group: &Group, register: &Register, opts: &Options) -> VerifyResul
             .entry((r.analyzed_on.year(), (r.analyzed_on.month() - 1) / 3 + 1))
             .or_default() += 1;
     }
-    let thin_quarters = quarters
+    quarters
         .into_iter()
         .filter(|(_, n)| *n < 2)
         .map(|((y, q), n)| (format!("{y}-Q{q}"), n))
-        .collect();
-    VerifyResult {
-        result,
-        from,
-        to,
-        existing,
-        ratio,
-        blanks_above,
-        blanks_total,
-        keep,
-        reasons,
-        thin_quarters,
-    }
+        .collect()
 }
