@@ -85,6 +85,23 @@ fn demo_covers_every_state_and_verdict() {
         let r = t.limen(&["check", &format!("ws/{b}"), "--format", "csv"]);
         states.extend(csv_column(&r.stdout, "state"));
         verdicts.extend(csv_column(&r.stdout, "verdict"));
+        // The value pair agrees with the state: an over-range result has no
+        // number, a not-detected one no rounded value.
+        let rows = csv_column(&r.stdout, "state")
+            .into_iter()
+            .zip(csv_column(&r.stdout, "value"))
+            .zip(csv_column(&r.stdout, "value_unrounded"))
+            .zip(csv_column(&r.stdout, "reported"));
+        for (((state, value), exact), reported) in rows {
+            match state.as_str() {
+                "over-range" => {
+                    assert_eq!((value.as_str(), exact.as_str()), ("", ""), "{reported}");
+                    assert!(reported.starts_with("> ") || reported == "over range");
+                }
+                "not-detected" => assert!(value.is_empty() && !exact.is_empty()),
+                _ => assert!(!value.is_empty() && !exact.is_empty(), "{state}"),
+            }
+        }
     }
     for s in [
         "not-detected",

@@ -376,3 +376,87 @@ fn impact_since_a_date_looks_only_at_later_issues() {
         (3, vec!["COA-2611-041".to_string()])
     );
 }
+
+/// (lab id, analyte) of each change row printed by `impact` or `reissue`:
+/// lines "    P01 Cd: old → new [kinds]".
+fn changed_rows(text: &str) -> Vec<String> {
+    text.lines()
+        .map(str::trim)
+        .filter(|l| l.contains(" → ") && l.ends_with(']'))
+        .filter_map(|l| l.split(':').next().map(String::from))
+        .collect()
+}
+
+/// `impact` and the re-issue it announces count and list the same changes.
+fn impact_matches_reissue(t: &TestDir, report: &str) -> Vec<String> {
+    let csv = ws(t, &["impact", "--format", "csv"]);
+    assert_eq!(csv.code, 3, "{}", csv.stdout);
+    let reports = csv_column(&csv.stdout, "report");
+    let k = reports.iter().position(|r| r == report).expect("listed");
+    let count: usize = csv_column(&csv.stdout, "changed_results")[k]
+        .parse()
+        .unwrap();
+    let table = ws(t, &["impact"]);
+    let listed = changed_rows(&table.stdout);
+    let r = ws(
+        t,
+        &[
+            "reissue",
+            report,
+            "--reason",
+            "limit corrected",
+            "--out",
+            "out",
+        ],
+    );
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    let changed = changed_rows(&r.stdout);
+    assert!(count > 0);
+    assert_eq!(changed.len(), count, "impact said {count}: {}", r.stdout);
+    assert_eq!(listed, changed, "the same rows");
+    assert!(
+        r.stdout.contains(&format!("{count} result(s) changed")),
+        "{}",
+        r.stdout
+    );
+    let h = ws(t, &["history", report]);
+    assert!(
+        h.stdout.contains(&format!("{count} result(s) changed")),
+        "{}",
+        h.stdout
+    );
+    changed
+}
+
+#[test]
+fn impact_counts_what_the_reissue_changes_after_a_register_correction() {
+    let t = issued("ledger-same-count");
+    update_register(&t);
+    let rows = impact_matches_reissue(&t, "COA-2611-041");
+    // Every paint cadmium result: those whose printed value changed and those
+    // whose printed MDL and LOQ alone changed.
+    assert_eq!(rows.len(), 8, "{rows:?}");
+    assert!(rows.contains(&"P02 Cd".to_string()), "{rows:?}");
+}
+
+#[test]
+fn impact_counts_what_the_reissue_changes_after_a_spec_change() {
+    let t = issued("ledger-spec-change");
+    // The cup limit is lowered: no register row changes, every cup result's
+    // limit applied does, and a verdict may.
+    let specs = t.read("ws/specs.csv").replace(
+        "FDA-CUP-PB,Pb,ceramic-leachate,0.5,µg/mL",
+        "FDA-CUP-PB,Pb,ceramic-leachate,0.05,µg/mL",
+    );
+    t.write("ws/specs.csv", specs);
+    let rows = impact_matches_reissue(&t, "COA-2611-052");
+    assert!(!rows.is_empty());
+    let text = t.read("out/COA-2611-052-r1.csv");
+    let limits = csv_column(&text, "spec_limit");
+    let spec = csv_column(&text, "spec");
+    for (s, l) in spec.iter().zip(&limits) {
+        if s == "FDA-CUP-PB" {
+            assert_eq!(l, "50", "0.05 µg/mL = 50 µg/L");
+        }
+    }
+}

@@ -29,7 +29,7 @@ pub fn table(checked: usize, affected: &[Impact], register: &str, specs: &str) -
     }
     for i in affected {
         out.push_str(&format!(
-            "{} revision {} (issued {}): {} result(s) would change: {} state, {} verdict, {} reported value{}\n",
+            "{} revision {} (issued {}): {} result(s) would change: {} state, {} verdict, {} reported value, {} MDL/LOQ, {} limit applied{}\n",
             i.issued.report,
             i.issued.revision,
             i.issued.issued_at.get(..10).unwrap_or(""),
@@ -37,6 +37,8 @@ pub fn table(checked: usize, affected: &[Impact], register: &str, specs: &str) -
             i.state_changes,
             i.verdict_changes,
             i.value_changes,
+            i.limits_changes,
+            i.spec_changes,
             if i.now_blocked { "; and it would now be blocked" } else { "" }
         ));
         for c in &i.changes {
@@ -108,6 +110,8 @@ fn impact_csv(affected: &[Impact]) -> std::io::Result<()> {
         "verdict_changes",
         "value_changes",
         "now_blocked",
+        "limits_changes",
+        "spec_changes",
     ])
     .map_err(io)?;
     for i in affected {
@@ -120,6 +124,8 @@ fn impact_csv(affected: &[Impact]) -> std::io::Result<()> {
             i.verdict_changes.to_string(),
             i.value_changes.to_string(),
             i.now_blocked.to_string(),
+            i.limits_changes.to_string(),
+            i.spec_changes.to_string(),
         ])
         .map_err(io)?;
     }

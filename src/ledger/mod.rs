@@ -9,7 +9,7 @@ use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 
 /// The schema this build writes; older ledgers are migrated forward.
-pub const SCHEMA_VERSION: i64 = 1;
+pub const SCHEMA_VERSION: i64 = 2;
 
 const MIGRATIONS: &[&str] = &[
     // 0 -> 1
@@ -60,6 +60,11 @@ const MIGRATIONS: &[&str] = &[
         size INTEGER NOT NULL
     );
     CREATE INDEX files_sha ON files(sha256);",
+    // 1 -> 2: what else a certificate prints of each result. NULL in the
+    // records of schema 1, which did not keep them: not compared.
+    "ALTER TABLE results ADD COLUMN spec TEXT;
+    ALTER TABLE results ADD COLUMN spec_limit TEXT;
+    ALTER TABLE results ADD COLUMN uncertainty TEXT;",
 ];
 
 #[derive(Debug, thiserror::Error)]
@@ -155,6 +160,34 @@ pub struct StoredResult {
     pub loq: String,
     pub limits_row: String,
     pub qualifiers: String,
+    /// The spec applied, its limit in the result's unit, and U as printed
+    /// ("" when none); None in records from before the ledger kept them.
+    pub spec: Option<String>,
+    pub spec_limit: Option<String>,
+    pub uncertainty: Option<String>,
+}
+
+impl StoredResult {
+    /// What the ledger keeps of a result: everything the certificate and
+    /// the CSV print of it, as text.
+    pub fn of(r: &crate::report::ReportRow) -> StoredResult {
+        StoredResult {
+            lab_id: r.lab_id.clone(),
+            analyte: r.analyte.to_string(),
+            state: r.state.name().to_string(),
+            verdict: r.verdict.map(|v| v.name()).unwrap_or("").to_string(),
+            reported: r.reported.clone(),
+            unit: r.unit.symbol().to_string(),
+            value: crate::numeric::plain(r.value_unrounded),
+            mdl: r.mdl.to_string(),
+            loq: r.loq.to_string(),
+            limits_row: r.limits_row.to_string(),
+            qualifiers: r.qualifiers.join(";"),
+            spec: Some(r.spec.as_deref().unwrap_or("").to_string()),
+            spec_limit: Some(r.spec_limit.map(crate::numeric::plain).unwrap_or_default()),
+            uncertainty: Some(r.uncertainty.map(|u| u.to_string()).unwrap_or_default()),
+        }
+    }
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -418,7 +451,8 @@ impl Ledger {
         let mut st = self
             .conn
             .prepare(
-                "SELECT lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers
+                "SELECT lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers,
+                        spec, spec_limit, uncertainty
                  FROM results WHERE report_id = ?1 ORDER BY rowid",
             )
             .map_err(self.sql())?;
@@ -435,6 +469,9 @@ impl Ledger {
                 loq: r.get(8)?,
                 limits_row: r.get(9)?,
                 qualifiers: r.get(10)?,
+                spec: r.get(11)?,
+                spec_limit: r.get(12)?,
+                uncertainty: r.get(13)?,
             })
         })
         .map_err(self.sql())?
@@ -522,24 +559,28 @@ impl Ledger {
         {
             let mut st = tx
                 .prepare(
-                    "INSERT INTO results (report_id, lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers)
-                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
+                    "INSERT INTO results (report_id, lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers,
+                                          spec, spec_limit, uncertainty)
+                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)",
                 )
                 .map_err(err)?;
-            for r in &rec.report.rows {
+            for r in rec.report.rows.iter().map(StoredResult::of) {
                 st.execute(params![
                     id,
                     r.lab_id,
-                    &*r.analyte,
-                    r.state.name(),
-                    r.verdict.map(|v| v.name()).unwrap_or(""),
+                    r.analyte,
+                    r.state,
+                    r.verdict,
                     r.reported,
-                    r.unit.symbol(),
-                    crate::numeric::plain(r.value_unrounded),
-                    r.mdl.to_string(),
-                    r.loq.to_string(),
-                    &*r.limits_row,
-                    r.qualifiers.join(";"),
+                    r.unit,
+                    r.value,
+                    r.mdl,
+                    r.loq,
+                    r.limits_row,
+                    r.qualifiers,
+                    r.spec,
+                    r.spec_limit,
+                    r.uncertainty,
                 ])
                 .map_err(err)?;
             }
@@ -671,6 +712,99 @@ mod tests {
         let _ = std::fs::remove_dir_all(&d);
         std::fs::create_dir_all(&d).unwrap();
         d
+    }
+
+    #[test]
+    fn a_schema_1_ledger_migrates_and_its_results_read_back() {
+        let ws = temp_ws("schema-1");
+        {
+            let c = Connection::open(Ledger::path_in(&ws)).unwrap();
+            c.execute_batch(MIGRATIONS[0]).unwrap();
+            c.execute_batch(
+                "PRAGMA user_version = 1;
+                 INSERT INTO reports (id, report, revision, status, issued_at, local_offset, signatory,
+                     tool_version, out_dir, batch_dir, lab_toml, batch_toml, results_name, results,
+                     limits_rows, spec_rows)
+                 VALUES (1, 'R-1', 0, 'issued', '2026-11-20T10:00:00Z', '+00:00', 'S', '0.1.0',
+                     'out', 'b', '', '', 'r.csv', x'', '', '');
+                 INSERT INTO results VALUES (1, 'S1', 'Pb', 'quantified', 'pass', '25.0', 'mg/kg',
+                     '25.01', '4.00', '12.0', 'S-1', '');",
+            )
+            .unwrap();
+        }
+        let (l, _) = Ledger::open(&ws).unwrap();
+        let v: i64 = l
+            .conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(v, SCHEMA_VERSION);
+        let rows = l.results(1).unwrap();
+        assert_eq!(rows.len(), 1);
+        assert_eq!(rows[0].reported, "25.0");
+        // Not kept by schema 1: unknown, and so never counted as a change.
+        assert_eq!(rows[0].spec, None);
+        assert_eq!(rows[0].uncertainty, None);
+        let mut now = rows[0].clone();
+        now.spec = Some("P".into());
+        now.spec_limit = Some("90".into());
+        now.uncertainty = Some("3.0".into());
+        assert!(recompute::kinds(&rows[0], &now).is_empty());
+        let _ = std::fs::remove_dir_all(&ws);
+    }
+
+    #[test]
+    fn each_field_a_certificate_prints_is_its_own_kind_of_change() {
+        use recompute::{ChangeKind as K, kinds};
+        let base = StoredResult {
+            lab_id: "S1".into(),
+            analyte: "Pb".into(),
+            state: "quantified".into(),
+            verdict: "pass".into(),
+            reported: "25.0".into(),
+            unit: "mg/kg".into(),
+            value: "25.01".into(),
+            mdl: "4.00".into(),
+            loq: "12.0".into(),
+            limits_row: "S-1".into(),
+            qualifiers: String::new(),
+            spec: Some("P".into()),
+            spec_limit: Some("90".into()),
+            uncertainty: Some("3.0".into()),
+        };
+        assert!(kinds(&base, &base).is_empty());
+        let with = |f: &dyn Fn(&mut StoredResult)| {
+            let mut n = base.clone();
+            f(&mut n);
+            kinds(&base, &n)
+        };
+        assert_eq!(with(&|n| n.state = "detected-below-loq".into()), [K::State]);
+        assert_eq!(with(&|n| n.verdict = "fail".into()), [K::Verdict]);
+        assert_eq!(with(&|n| n.reported = "25.1".into()), [K::Reported]);
+        assert_eq!(with(&|n| n.unit = "µg/g".into()), [K::Reported]);
+        assert_eq!(with(&|n| n.value = "25.02".into()), [K::Value]);
+        assert_eq!(with(&|n| n.mdl = "4.10".into()), [K::Limits]);
+        assert_eq!(with(&|n| n.loq = "12.5".into()), [K::Limits]);
+        assert_eq!(with(&|n| n.limits_row = "S-2".into()), [K::Limits]);
+        assert_eq!(with(&|n| n.spec = Some("Q".into())), [K::Spec]);
+        assert_eq!(with(&|n| n.spec_limit = Some("100".into())), [K::Spec]);
+        assert_eq!(
+            with(&|n| n.qualifiers = "imprecise".into()),
+            [K::Qualifiers]
+        );
+        assert_eq!(
+            with(&|n| n.uncertainty = Some("3.1".into())),
+            [K::Uncertainty]
+        );
+        let both = with(&|n| {
+            n.reported = "< 4.00".into();
+            n.state = "not-detected".into();
+        });
+        assert_eq!(both, [K::State, K::Reported]);
+        // Results present on one side only.
+        let gone = recompute::changes(std::slice::from_ref(&base), &[]);
+        assert_eq!(gone[0].kinds, [K::Removed]);
+        let new = recompute::changes(&[], std::slice::from_ref(&base));
+        assert_eq!(new[0].kinds, [K::Added]);
     }
 
     #[test]

@@ -3,7 +3,6 @@
 
 use super::LedgerError as Error;
 use super::{Snapshot, StoredResult};
-use crate::numeric::plain;
 use crate::read::ReadError;
 use crate::read::{Batch, LimitRow, Manifest, Register, SpecRow, Specs, Workspace, lab_from};
 use crate::report::{EvalError, Report, RunInfo};
@@ -116,31 +115,99 @@ pub fn recompute(
     Ok((ws, batch, report))
 }
 
-/// One result whose state, verdict, reported value or sample limits differ.
+/// What about a result changed. One list, used by `impact`, `reissue`,
+/// `history` and the revised certificate, so all count the same changes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum ChangeKind {
+    /// A result in one and not the other.
+    Added,
+    Removed,
+    State,
+    Verdict,
+    /// The printed result ("< 0.979", "25.0") or its unit.
+    Reported,
+    /// The unrounded value behind it.
+    Value,
+    /// The sample MDL or LOQ printed, or the register row they come from.
+    Limits,
+    /// The spec applied or its limit.
+    Spec,
+    Qualifiers,
+    /// The expanded uncertainty printed under the result.
+    Uncertainty,
+}
+
+impl ChangeKind {
+    pub fn name(self) -> &'static str {
+        match self {
+            ChangeKind::Added => "added",
+            ChangeKind::Removed => "removed",
+            ChangeKind::State => "state",
+            ChangeKind::Verdict => "verdict",
+            ChangeKind::Reported => "reported value",
+            ChangeKind::Value => "value",
+            ChangeKind::Limits => "MDL/LOQ",
+            ChangeKind::Spec => "limit applied",
+            ChangeKind::Qualifiers => "qualifiers",
+            ChangeKind::Uncertainty => "uncertainty",
+        }
+    }
+}
+
+/// What changed between two records of one result, in the order above.
+/// Fields a schema-1 record did not keep (None) are not compared.
+pub fn kinds(o: &StoredResult, n: &StoredResult) -> Vec<ChangeKind> {
+    let kept =
+        |a: &Option<String>, b: &Option<String>| matches!((a, b), (Some(x), Some(y)) if x != y);
+    let mut k = Vec::new();
+    if o.state != n.state {
+        k.push(ChangeKind::State);
+    }
+    if o.verdict != n.verdict {
+        k.push(ChangeKind::Verdict);
+    }
+    if o.reported != n.reported || o.unit != n.unit {
+        k.push(ChangeKind::Reported);
+    }
+    if o.value != n.value {
+        k.push(ChangeKind::Value);
+    }
+    if o.mdl != n.mdl || o.loq != n.loq || o.limits_row != n.limits_row {
+        k.push(ChangeKind::Limits);
+    }
+    if kept(&o.spec, &n.spec) || kept(&o.spec_limit, &n.spec_limit) {
+        k.push(ChangeKind::Spec);
+    }
+    if o.qualifiers != n.qualifiers {
+        k.push(ChangeKind::Qualifiers);
+    }
+    if kept(&o.uncertainty, &n.uncertainty) {
+        k.push(ChangeKind::Uncertainty);
+    }
+    k
+}
+
+/// One result that differs between what was issued and what is computed now.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Change {
     pub lab_id: String,
     pub analyte: String,
     pub old: Option<StoredResult>,
     pub new: Option<StoredResult>,
+    /// Never empty.
+    pub kinds: Vec<ChangeKind>,
 }
 
 impl Change {
-    /// A change a client would see in a verdict, a state or a printed value.
-    pub fn material(&self) -> bool {
-        match (&self.old, &self.new) {
-            (Some(o), Some(n)) => {
-                o.state != n.state || o.verdict != n.verdict || o.reported != n.reported
-            }
-            _ => true,
-        }
+    pub fn is(&self, kind: ChangeKind) -> bool {
+        self.kinds.contains(&kind)
     }
 
     /// In words, for a change table and a revised certificate.
     pub fn describe(&self) -> String {
         let side = |r: &Option<StoredResult>| match r {
             Some(r) => format!(
-                "{} {} ({}{}; MDL {}, LOQ {})",
+                "{} {} ({}{}; MDL {}, LOQ {}{})",
                 r.reported,
                 r.unit,
                 r.state,
@@ -150,64 +217,53 @@ impl Change {
                     format!(", {}", r.verdict)
                 },
                 r.mdl,
-                r.loq
+                r.loq,
+                match (&r.spec, &r.spec_limit) {
+                    (Some(s), Some(l)) if !s.is_empty() && self.is(ChangeKind::Spec) =>
+                        format!("; {s} {l} {}", r.unit),
+                    _ => String::new(),
+                }
             ),
             None => "not reported".into(),
         };
         format!(
-            "{} {}: {} → {}",
+            "{} {}: {} → {} [{}]",
             self.lab_id,
             self.analyte,
             side(&self.old),
-            side(&self.new)
+            side(&self.new),
+            self.kinds
+                .iter()
+                .map(|k| k.name())
+                .collect::<Vec<_>>()
+                .join(", ")
         )
     }
 }
 
+/// What the ledger would keep of each result of `report`.
 pub fn stored(report: &Report) -> Vec<StoredResult> {
-    report
-        .rows
-        .iter()
-        .map(|r| StoredResult {
-            lab_id: r.lab_id.clone(),
-            analyte: r.analyte.to_string(),
-            state: r.state.name().to_string(),
-            verdict: r.verdict.map(|v| v.name()).unwrap_or("").to_string(),
-            reported: r.reported.clone(),
-            unit: r.unit.symbol().to_string(),
-            value: plain(r.value_unrounded),
-            mdl: r.mdl.to_string(),
-            loq: r.loq.to_string(),
-            limits_row: r.limits_row.to_string(),
-            qualifiers: r.qualifiers.join(";"),
-        })
-        .collect()
+    report.rows.iter().map(StoredResult::of).collect()
 }
 
-/// Results that differ between what was issued and what is computed now.
+/// Results that differ between what was issued and what is computed now,
+/// each with what about it changed.
 pub fn changes(old: &[StoredResult], new: &[StoredResult]) -> Vec<Change> {
     let key = |r: &StoredResult| (r.lab_id.clone(), r.analyte.to_lowercase());
     let mut out = Vec::new();
     for o in old {
         let n = new.iter().find(|n| key(n) == key(o));
-        let differs = match n {
-            None => true,
-            Some(n) => {
-                o.state != n.state
-                    || o.verdict != n.verdict
-                    || o.reported != n.reported
-                    || o.mdl != n.mdl
-                    || o.loq != n.loq
-                    || o.unit != n.unit
-                    || o.qualifiers != n.qualifiers
-            }
+        let kinds = match n {
+            None => vec![ChangeKind::Removed],
+            Some(n) => kinds(o, n),
         };
-        if differs {
+        if !kinds.is_empty() {
             out.push(Change {
                 lab_id: o.lab_id.clone(),
                 analyte: o.analyte.clone(),
                 old: Some(o.clone()),
                 new: n.cloned(),
+                kinds,
             });
         }
     }
@@ -217,6 +273,7 @@ pub fn changes(old: &[StoredResult], new: &[StoredResult]) -> Vec<Change> {
             analyte: n.analyte.clone(),
             old: None,
             new: Some(n.clone()),
+            kinds: vec![ChangeKind::Added],
         });
     }
     out
@@ -230,13 +287,16 @@ pub struct Impact {
     pub state_changes: usize,
     pub verdict_changes: usize,
     pub value_changes: usize,
+    pub limits_changes: usize,
+    pub spec_changes: usize,
     /// The recomputed report has a blocking problem (a limit no longer in force, say).
     pub now_blocked: bool,
 }
 
 /// Recomputes the latest revision of every issued report (issued since
-/// `since`, if given) and returns those whose states, verdicts or reported
-/// values would change, and those that could not be recomputed.
+/// `since`, if given) and returns those a re-issue would change (by
+/// `changes`, the comparison `reissue` makes), and those that could not be
+/// recomputed.
 pub fn impact(
     ledger: &super::Ledger,
     against: &Against<'_>,
@@ -255,26 +315,21 @@ pub fn impact(
                 continue;
             }
         };
-        let material: Vec<Change> = changes(&ledger.results(issued.id)?, &stored(&report))
-            .into_iter()
-            .filter(Change::material)
-            .collect();
-        if material.is_empty() && !report.is_blocked() {
+        // The same comparison a re-issue makes, so the counts agree.
+        let diff = changes(&ledger.results(issued.id)?, &stored(&report));
+        if diff.is_empty() && !report.is_blocked() {
             continue;
         }
-        let count = |f: fn(&StoredResult) -> &String| {
-            material
-                .iter()
-                .filter(|c| c.old.as_ref().map(f) != c.new.as_ref().map(f))
-                .count()
-        };
+        let count = |k: ChangeKind| diff.iter().filter(|c| c.is(k)).count();
         affected.push(Impact {
             issued: issued.clone(),
-            state_changes: count(|r| &r.state),
-            verdict_changes: count(|r| &r.verdict),
-            value_changes: count(|r| &r.reported),
+            state_changes: count(ChangeKind::State),
+            verdict_changes: count(ChangeKind::Verdict),
+            value_changes: count(ChangeKind::Reported),
+            limits_changes: count(ChangeKind::Limits),
+            spec_changes: count(ChangeKind::Spec),
             now_blocked: report.is_blocked(),
-            changes: material,
+            changes: diff,
         });
     }
     Ok((all.len(), affected, failed))

@@ -68,7 +68,13 @@ fn write_row<W: std::io::Write>(
         Some(v) => number(w, &v)?,
         None => number(w, &"")?,
     }
-    number(w, &plain(r.value_unrounded))?;
+    // Over range, the reading was above the highest standard: no number
+    // stands for the result, so both value columns are empty.
+    if r.state == crate::classify::State::OverRange {
+        number(w, &"")?;
+    } else {
+        number(w, &plain(r.value_unrounded))?;
+    }
     text(w, r.unit.symbol())?;
     text(w, r.state.name())?;
     number(w, &r.mdl)?;
