@@ -35,6 +35,10 @@ impl EvalError {
     }
 }
 
+/// The qualifier of a pass whose detection power at the limit is below
+/// the lab's (β above its β).
+pub const LOW_POWER: &str = "low-power";
+
 /// One client result as the certificate states it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ReportRow {
@@ -67,6 +71,12 @@ pub struct ReportRow {
     /// The expanded uncertainty U (k = 2) as printed, in `unit`: for a
     /// quantified result that gives `uncertainty_pct`, else None.
     pub uncertainty: Option<Decimal>,
+    /// Detection power, for a not-detected or below-LOQ result with a limit
+    /// when the register row keeps the study's spike SD: the sample's L_D
+    /// (Currie) and β, the chance a sample at the limit would have been
+    /// reported not detected. Both rounded as printed.
+    pub ld: Option<Decimal>,
+    pub beta_at_limit: Option<Decimal>,
     pub qualifiers: Vec<String>,
     /// The register row used: study id, else file:line.
     pub limits_row: Arc<str>,

@@ -14,6 +14,7 @@ pub mod ledger;
 pub mod numeric;
 pub mod output;
 pub mod pdf;
+pub mod power;
 pub mod problem;
 pub mod qc;
 pub mod read;

@@ -110,6 +110,16 @@ pub fn round_sig_up(d: Decimal, sig: u32) -> Decimal {
     }
 }
 
+/// A decimal of an f64, with 15 significant digits (all an f64 holds).
+pub fn decimal_of(x: f64) -> Option<Decimal> {
+    if !x.is_finite() {
+        return None;
+    }
+    Decimal::from_scientific(&format!("{x:.14e}"))
+        .ok()
+        .map(|d| d.normalize())
+}
+
 /// Plain text of an exact decimal without meaningless trailing zeros.
 pub fn plain(d: Decimal) -> String {
     let n = d.normalize();

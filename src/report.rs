@@ -2,7 +2,7 @@
 //! as text and decimals; renderers only lay it out.
 
 use crate::classify::{self, Comparison, State, VerdictError};
-pub use crate::evaluated::{EvalError, ReportRow};
+pub use crate::evaluated::{EvalError, LOW_POWER, ReportRow};
 use crate::numeric::round_sig;
 use crate::problem::{Problem, ProblemKind};
 use crate::qc::{QC_EXCEPTION, QcCheck};
@@ -40,6 +40,7 @@ pub struct Header {
     pub signatory: String,
     pub signatory_role: String,
     pub decision_rule: DecisionRule,
+    pub detection_power: crate::read::DetectionPower,
     pub compare: Compare,
     pub significant_figures: u32,
     pub page_size: PageSize,
@@ -133,6 +134,7 @@ pub fn build(
         signatory: lab.signatory.clone(),
         signatory_role: lab.signatory_role.clone(),
         decision_rule: m.decision_rule.unwrap_or(lab.decision_rule),
+        detection_power: lab.detection_power,
         compare: lab.compare,
         significant_figures: lab.significant_figures,
         page_size: lab.page_size,
@@ -198,7 +200,20 @@ fn classify_row(
     let state = classify::state(r.value, r.mdl, r.loq, r.over_range);
     let rounded = round_sig(r.value, sig);
     let (mdl, loq) = (round_sig(r.mdl, sig), round_sig(r.loq, sig));
-    let verdict = verdict_of(&row, r, header, state, (rounded, mdl, loq))?;
+    let mut verdict = verdict_of(&row, r, header, state, (rounded, mdl, loq))?;
+    let (ld, beta_at_limit, beta) = power_at_limit(r, state, header);
+    let mut qualifiers = Vec::new();
+    if let Some(b) = beta {
+        let p = header.detection_power;
+        if verdict == Some(classify::Verdict::Pass) && b > p.beta {
+            match p.weak_pass {
+                crate::read::WeakPass::Qualify => qualifiers.push(LOW_POWER.to_string()),
+                crate::read::WeakPass::Inconclusive => {
+                    verdict = Some(classify::Verdict::Inconclusive)
+                }
+            }
+        }
+    }
     let uncertainty = match (state, row.uncertainty_pct) {
         (State::Quantified, Some(pct)) => Some(classify::reported_uncertainty(
             classify::expanded_uncertainty(r.value, pct).ok_or_else(|| EvalError::Overflow {
@@ -254,7 +269,9 @@ fn classify_row(
         verdict,
         uncertainty_pct: row.uncertainty_pct,
         uncertainty,
-        qualifiers: Vec::new(),
+        ld,
+        beta_at_limit,
+        qualifiers,
         limits_row: r.limits.reference.clone(),
     })
 }
@@ -339,4 +356,38 @@ fn methods_used(
         }
     }
     methods
+}
+
+/// L_D and β at the limit for a not-detected or below-LOQ result with a
+/// limit whose register row keeps the study's spike SD (Currie; see
+/// `power`): (L_D as printed, β as printed, β unrounded for the verdict).
+type Power = (
+    Option<rust_decimal::Decimal>,
+    Option<rust_decimal::Decimal>,
+    Option<f64>,
+);
+
+fn power_at_limit(r: &resolve::Resolved<'_>, state: State, header: &Header) -> Power {
+    let (Some((sd, n)), Some(spec)) = (r.spike_sd, &r.spec) else {
+        return (None, None, None);
+    };
+    if !matches!(state, State::NotDetected | State::DetectedBelowLoq) {
+        return (None, None, None);
+    }
+    let f = |d: rust_decimal::Decimal| d.to_string().parse::<f64>().ok();
+    let (Some(sd), Some(mdl), Some(limit)) = (f(sd), f(r.mdl), f(spec.limit)) else {
+        return (None, None, None);
+    };
+    let p = header.detection_power;
+    let ld = crate::power::detection_limit(sd, n, p.alpha, p.beta)
+        .and_then(crate::numeric::decimal_of)
+        .map(|d| round_sig(d, header.significant_figures));
+    // Four places keep a weak pass visible without claiming more precision
+    // than a replicate study has.
+    let beta = crate::power::beta_at_limit(mdl, limit, sd, n);
+    // Four decimal places: "0.0000" is below 0.00005 (a decimal cannot hold
+    // the far tail, and no study supports more digits).
+    let printed =
+        beta.and_then(|b| crate::numeric::decimal_of(b.max(0.0).max(1e-12)).map(|d| d.round_dp(4)));
+    (ld, printed, beta)
 }

@@ -49,6 +49,9 @@ pub struct Resolved<'w> {
     pub upper: Option<Decimal>,
     pub over_range: bool,
     pub spec: Option<ResolvedSpec<'w>>,
+    /// The study's spike SD scaled to the sample exactly as the MDL is, and
+    /// its number of spikes; when the register row keeps them.
+    pub spike_sd: Option<(Decimal, u32)>,
 }
 
 pub enum Resolution<'w> {
@@ -190,6 +193,15 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
     let loq = limit_to_sample(row, limits, limits.loq)
         .ok_or_else(|| overflow(row, "the sample LOQ"))?
         .ok_or_else(|| unit_mismatch(row, limits, "the LOQ"))?;
+    let spike_sd = match limits.spike_sd {
+        None => None,
+        Some((sd, n)) => Some((
+            limit_to_sample(row, limits, sd)
+                .ok_or_else(|| overflow(row, "the sample's spike SD"))?
+                .ok_or_else(|| unit_mismatch(row, limits, "the spike SD"))?,
+            n,
+        )),
+    };
     let (upper, over_range) = upper_range(row, limits)?;
     let spec = match &row.spec {
         None => None,
@@ -207,6 +219,7 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
         upper,
         over_range,
         spec,
+        spike_sd,
     }))
 }
 

@@ -579,3 +579,102 @@ fn extreme_numbers_are_errors_not_panics() {
         assert!(!r.stderr.contains("panicked"), "{}", r.stderr);
     }
 }
+
+/// P09 of the demo: a cadmium not-detected pass whose MDL is close to the
+/// limit (β ≈ 0.079 > the lab's 0.01).
+#[test]
+fn a_pass_with_little_detection_power_is_qualified_or_made_inconclusive() {
+    let t = TestDir::new("power");
+    t.demo_workspace("ws");
+    let b = "ws/furniture-jewellery-2611-041";
+    let r = t.limen(&["check", b, "--format", "csv"]);
+    let p09 = csv_row(&r.stdout, "P09", "Cd");
+    assert_eq!(p09["verdict"], "pass");
+    assert_eq!(p09["qualifiers"], "low-power");
+    // MDL_s = 50.0 mg/kg, s_s = 0.62 µg/L scaled like the MDL = 15.5 mg/kg,
+    // limit 75: β = F_t6((50 − 75) / 15.5) = F_t6(−1.613) = 0.0789 (by hand
+    // from the t distribution; statrs agrees). L_D = (3.143 + 3.143) × 15.5
+    // = 97.4 mg/kg (40 CFR 136 App. B t table, α = β = 0.01).
+    assert_eq!(p09["beta_at_limit"], "0.0789");
+    assert_eq!(p09["ld"], "97.4");
+    // A strong pass is not touched: P01's MDL is far below its limit.
+    let p01 = csv_row(&r.stdout, "P01", "Cd");
+    assert_eq!(p01["beta_at_limit"], "0.0000");
+    assert!(!p01["qualifiers"].contains("low-power"));
+
+    // The lab may make such a pass inconclusive instead.
+    let lab = t.read("ws/lab.toml") + "\n[detection_power]\nweak_pass = \"inconclusive\"\n";
+    t.write("ws/lab.toml", lab);
+    let r = t.limen(&["check", b, "--format", "csv"]);
+    let p09 = csv_row(&r.stdout, "P09", "Cd");
+    assert_eq!(p09["verdict"], "inconclusive");
+    assert_eq!(p09["qualifiers"], "");
+    // A looser β: the same result is a plain pass.
+    let lab = t
+        .read("ws/lab.toml")
+        .replace("weak_pass = \"inconclusive\"", "beta = 0.10");
+    t.write("ws/lab.toml", lab);
+    let r = t.limen(&["check", b, "--format", "csv"]);
+    let p09 = csv_row(&r.stdout, "P09", "Cd");
+    assert_eq!(
+        (p09["verdict"].as_str(), p09["qualifiers"].as_str()),
+        ("pass", "")
+    );
+    // A nonsense β is an input error at its line.
+    let lab = t.read("ws/lab.toml").replace("beta = 0.10", "beta = 1.5");
+    t.write("ws/lab.toml", lab);
+    let r = t.limen(&["check", b]);
+    assert_eq!(r.code, 2);
+    assert!(
+        r.stderr.contains("lab.toml:") && r.stderr.contains("beta"),
+        "{}",
+        r.stderr
+    );
+}
+
+#[test]
+fn a_register_without_the_study_sd_behaves_as_before() {
+    let t = TestDir::new("power-none");
+    t.demo_workspace("ws");
+    let limits = t.read("ws/limits.csv");
+    let stripped: String = limits
+        .lines()
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            cells[..cells.len() - 2].join(",")
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    t.write("ws/limits.csv", stripped + "\n");
+    let r = t.limen(&[
+        "check",
+        "ws/furniture-jewellery-2611-041",
+        "--format",
+        "csv",
+    ]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(
+        csv_column(&r.stdout, "beta_at_limit")
+            .iter()
+            .all(String::is_empty)
+    );
+    assert!(csv_column(&r.stdout, "ld").iter().all(String::is_empty));
+    let p09 = csv_row(&r.stdout, "P09", "Cd");
+    assert_eq!(
+        (p09["verdict"].as_str(), p09["qualifiers"].as_str()),
+        ("pass", "")
+    );
+    // sd without n is refused at its cell.
+    let half = t
+        .read("ws/limits.csv")
+        .replace("study_id,note", "study_id,note,sd")
+        .replacen(
+            "initial study on 0.1 g paint chips in 50 mL",
+            "initial study on 0.1 g paint chips in 50 mL,2.5",
+            1,
+        );
+    t.write("ws/limits.csv", half);
+    let r = t.limen(&["check", "ws/furniture-jewellery-2611-041"]);
+    assert_eq!(r.code, 2, "{}", r.stdout);
+    assert!(r.stderr.contains("limits.csv:2: field `n`"), "{}", r.stderr);
+}

@@ -158,6 +158,7 @@ fn computation_never_imports_rendering_output_or_the_ledger() {
         "problem",
         "report",
         "study",
+        "power",
     ];
     let above = [
         "render",

@@ -62,7 +62,8 @@ fn impact_reissue_verify_and_history() {
     let r = ws(&t, &["impact", "--format", "csv"]);
     assert_eq!(r.code, 3);
     assert_eq!(csv_column(&r.stdout, "report"), vec!["COA-2611-041"]);
-    assert_eq!(csv_column(&r.stdout, "value_changes"), vec!["5"]);
+    // P01 and P05 to P09: the printed "< MDL" moves with the cadmium MDL.
+    assert_eq!(csv_column(&r.stdout, "value_changes"), vec!["6"]);
 
     let r = ws(
         &t,
@@ -137,10 +138,14 @@ fn impact_reissue_verify_and_history() {
         "revision 1",
         "revision 2",
         "reason: cadmium MDL corrected",
-        "8 result(s) changed",
+        "9 result(s) changed",
     ] {
         assert!(r.stdout.contains(needle), "{needle}: {}", r.stdout);
     }
+    // One line for the report, then one per revision.
+    let lines: Vec<&str> = r.stdout.lines().collect();
+    assert_eq!(lines.len(), 4, "{}", r.stdout);
+    assert!(lines[2].starts_with("  revision 1 ") && lines[2].contains("9 result(s) changed"));
 
     let r = ws(&t, &["verify", "out/COA-2611-041.pdf"]);
     assert_eq!(r.code, 0);
@@ -435,7 +440,7 @@ fn impact_counts_what_the_reissue_changes_after_a_register_correction() {
     let rows = impact_matches_reissue(&t, "COA-2611-041");
     // Every paint cadmium result: those whose printed value changed and those
     // whose printed MDL and LOQ alone changed.
-    assert_eq!(rows.len(), 8, "{rows:?}");
+    assert_eq!(rows.len(), 9, "{rows:?}");
     assert!(rows.contains(&"P02 Cd".to_string()), "{rows:?}");
 }
 

@@ -315,3 +315,33 @@ fn every_number_in_the_results_table_is_in_the_csv() {
         }
     }
 }
+
+#[test]
+fn the_footnote_states_the_detection_power_of_a_weak_pass_in_numbers() {
+    let t = TestDir::new("pdf-power");
+    demo(&t);
+    let csv = t.read("out/reports/COA-2611-041.csv");
+    let p09 = util::csv_row(&csv, "P09", "Cd");
+    let beta: f64 = p09["beta_at_limit"].parse().unwrap();
+    let text = pages(&t.path("out/reports/COA-2611-041.pdf")).join(" ");
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    let sentence = format!(
+        "P09 Cd: if the item contained Cd at exactly the limit (75 mg/kg), this test would have missed it about {} times in 100 (β = {})",
+        (beta * 100.0).round(),
+        p09["beta_at_limit"]
+    );
+    assert!(flat.contains(&sentence), "{flat}");
+    assert!(
+        flat.contains(&format!("from about {} mg/kg", p09["ld"])),
+        "{flat}"
+    );
+    assert!(flat.contains("P: pass with low detection power"), "{flat}");
+    // The ceramics report has no weak pass: one sentence, no list.
+    let text = pages(&t.path("out/reports/COA-2611-052.pdf")).join(" ");
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        flat.contains("an item at the limit would have been found at least 99 times in 100"),
+        "{flat}"
+    );
+    assert!(!flat.contains("P: pass with low detection power"));
+}

@@ -84,6 +84,8 @@ fn the_register_update_keeps_old_rows_and_takes_effect_on_its_date() {
         "S-NEW",
     ]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    // This register has no sd and n columns: the study says what is lost.
+    assert!(r.stderr.contains("has no sd or n column"), "{}", r.stderr);
     let after = t.read("ws/limits.csv");
     assert!(
         after.starts_with(&before),
@@ -344,4 +346,34 @@ fn study_record_pdf_holds_the_results_and_every_replicate() {
         assert!(text.contains(&format!("SP{i}")), "SP{i} missing");
         assert!(text.contains(&format!("BL{i}")), "BL{i} missing");
     }
+}
+
+#[test]
+fn the_register_update_keeps_the_spike_sd_and_count() {
+    let t = fixture("study-register-sd");
+    t.write(
+        "ws/limits.csv",
+        LIMITS
+            .replace("study_id,note\n", "study_id,note,sd,n\n")
+            .replace("first study\n", "first study,2.5,7\n"),
+    );
+    let r = t.limen(&[
+        "study",
+        "ws/study.csv",
+        "--register",
+        "ws/limits.csv",
+        "--effective",
+        "2026-12-01",
+        "--study-id",
+        "S-NEW",
+    ]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    assert!(!r.stderr.contains("no sd"), "{}", r.stderr);
+    let after = t.read("ws/limits.csv");
+    // s = 0.323669 (by hand, Berthouex & Brown Example 14.1 set 1), rounded
+    // up to 3 figures as the limits are; 7 spikes.
+    assert!(
+        after.ends_with("S-NEW,40 CFR 136 App. B Rev. 2: MDL_S governs; LOQ ten-sd,0.324,7\n"),
+        "{after}"
+    );
 }

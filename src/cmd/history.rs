@@ -18,7 +18,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut text = format!("{}\n", a.report);
     for r in &revisions {
         text.push_str(&format!(
-            "  revision {}  issued {} ({})  by {}  limen {}  {} result(s) changed{}",
+            "  revision {}  issued {} ({})  by {}  limen {}  {} result(s) changed{}\n",
             r.revision,
             r.issued_at,
             r.local_offset,

@@ -155,10 +155,17 @@ pub fn run(a: Args) -> Result<i32, Error> {
         write_new_at(csv_path, &out::mdl_csv(&results))?;
     }
     if let Some((reg_path, rows)) = update {
-        register_update::append(&reg_path, &rows)?;
+        let dropped = register_update::append(&reg_path, &rows)?;
         println!("appended to {}:", reg_path.display());
         for r in &rows {
             println!("  {}", r.describe());
+        }
+        if !dropped.is_empty() {
+            eprintln!(
+                "note: {} has no {} column(s); the study's spike SD and count were not kept, so results against these limits get no detection power",
+                reg_path.display(),
+                dropped.join(" or ")
+            );
         }
     }
     Ok(EXIT_OK)

@@ -64,7 +64,9 @@ const MIGRATIONS: &[&str] = &[
     // records of schema 1, which did not keep them: not compared.
     "ALTER TABLE results ADD COLUMN spec TEXT;
     ALTER TABLE results ADD COLUMN spec_limit TEXT;
-    ALTER TABLE results ADD COLUMN uncertainty TEXT;",
+    ALTER TABLE results ADD COLUMN uncertainty TEXT;
+    ALTER TABLE results ADD COLUMN ld TEXT;
+    ALTER TABLE results ADD COLUMN beta TEXT;",
 ];
 
 #[derive(Debug, thiserror::Error)]
@@ -165,6 +167,9 @@ pub struct StoredResult {
     pub spec: Option<String>,
     pub spec_limit: Option<String>,
     pub uncertainty: Option<String>,
+    /// Detection power: L_D and β at the limit ("" when not computed).
+    pub ld: Option<String>,
+    pub beta: Option<String>,
 }
 
 impl StoredResult {
@@ -186,6 +191,8 @@ impl StoredResult {
             spec: Some(r.spec.as_deref().unwrap_or("").to_string()),
             spec_limit: Some(r.spec_limit.map(crate::numeric::plain).unwrap_or_default()),
             uncertainty: Some(r.uncertainty.map(|u| u.to_string()).unwrap_or_default()),
+            ld: Some(r.ld.map(|d| d.to_string()).unwrap_or_default()),
+            beta: Some(r.beta_at_limit.map(|b| b.to_string()).unwrap_or_default()),
         }
     }
 }
@@ -452,7 +459,7 @@ impl Ledger {
             .conn
             .prepare(
                 "SELECT lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers,
-                        spec, spec_limit, uncertainty
+                        spec, spec_limit, uncertainty, ld, beta
                  FROM results WHERE report_id = ?1 ORDER BY rowid",
             )
             .map_err(self.sql())?;
@@ -472,6 +479,8 @@ impl Ledger {
                 spec: r.get(11)?,
                 spec_limit: r.get(12)?,
                 uncertainty: r.get(13)?,
+                ld: r.get(14)?,
+                beta: r.get(15)?,
             })
         })
         .map_err(self.sql())?
@@ -560,8 +569,8 @@ impl Ledger {
             let mut st = tx
                 .prepare(
                     "INSERT INTO results (report_id, lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers,
-                                          spec, spec_limit, uncertainty)
-                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)",
+                                          spec, spec_limit, uncertainty, ld, beta)
+                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)",
                 )
                 .map_err(err)?;
             for r in rec.report.rows.iter().map(StoredResult::of) {
@@ -581,6 +590,8 @@ impl Ledger {
                     r.spec,
                     r.spec_limit,
                     r.uncertainty,
+                    r.ld,
+                    r.beta,
                 ])
                 .map_err(err)?;
             }
@@ -770,6 +781,8 @@ mod tests {
             spec: Some("P".into()),
             spec_limit: Some("90".into()),
             uncertainty: Some("3.0".into()),
+            ld: Some(String::new()),
+            beta: Some(String::new()),
         };
         assert!(kinds(&base, &base).is_empty());
         let with = |f: &dyn Fn(&mut StoredResult)| {

@@ -135,6 +135,8 @@ pub enum ChangeKind {
     Qualifiers,
     /// The expanded uncertainty printed under the result.
     Uncertainty,
+    /// Detection power: β at the limit or L_D.
+    Power,
 }
 
 impl ChangeKind {
@@ -150,6 +152,7 @@ impl ChangeKind {
             ChangeKind::Spec => "limit applied",
             ChangeKind::Qualifiers => "qualifiers",
             ChangeKind::Uncertainty => "uncertainty",
+            ChangeKind::Power => "detection power",
         }
     }
 }
@@ -183,6 +186,9 @@ pub fn kinds(o: &StoredResult, n: &StoredResult) -> Vec<ChangeKind> {
     }
     if kept(&o.uncertainty, &n.uncertainty) {
         k.push(ChangeKind::Uncertainty);
+    }
+    if kept(&o.beta, &n.beta) || kept(&o.ld, &n.ld) {
+        k.push(ChangeKind::Power);
     }
     k
 }

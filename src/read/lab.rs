@@ -42,6 +42,46 @@ struct LabFile {
     #[serde(default)]
     methods: BTreeMap<String, String>,
     qc: Option<super::qc_config::QcFile>,
+    detection_power: Option<DetectionPowerFile>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct DetectionPowerFile {
+    alpha: Option<f64>,
+    beta: Option<f64>,
+    weak_pass: Option<WeakPass>,
+}
+
+/// What a pass resting on too little detection power becomes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum WeakPass {
+    /// Stays a pass, qualified `low-power` with its β.
+    Qualify,
+    /// Becomes inconclusive.
+    Inconclusive,
+}
+
+/// The error rates behind detection power (Currie): α, the chance of a
+/// false detection, sets the critical level; β, the chance of missing an
+/// analyte at the detection limit, sets L_D and which passes are weak.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DetectionPower {
+    pub alpha: f64,
+    pub beta: f64,
+    pub weak_pass: WeakPass,
+}
+
+impl Default for DetectionPower {
+    fn default() -> DetectionPower {
+        // α = β = 0.01: the MDL's own 99 % (40 CFR 136 Appendix B) on both sides.
+        DetectionPower {
+            alpha: 0.01,
+            beta: 0.01,
+            weak_pass: WeakPass::Qualify,
+        }
+    }
 }
 
 #[derive(Debug, Clone)]
@@ -63,6 +103,7 @@ pub struct Lab {
     /// QC windows from lab.toml's [qc]; the workspace may take them from qc.toml instead.
     pub qc: super::qc_config::QcConfig,
     pub qc_in_lab_file: bool,
+    pub detection_power: DetectionPower,
 }
 
 impl Lab {
@@ -113,7 +154,9 @@ impl Lab {
                 "write it as \"+01:00\" or \"-05:00\"",
             )
         })?;
+        let detection_power = detection_power(file, text, f.detection_power.as_ref())?;
         Ok(Lab {
+            detection_power,
             utc_offset,
             qc,
             qc_in_lab_file,
@@ -132,6 +175,34 @@ impl Lab {
             methods: f.methods,
         })
     }
+}
+
+fn detection_power(
+    file: &str,
+    text: &str,
+    f: Option<&DetectionPowerFile>,
+) -> Result<DetectionPower, ReadError> {
+    let d = DetectionPower::default();
+    let Some(f) = f else { return Ok(d) };
+    let p = DetectionPower {
+        alpha: f.alpha.unwrap_or(d.alpha),
+        beta: f.beta.unwrap_or(d.beta),
+        weak_pass: f.weak_pass.unwrap_or(d.weak_pass),
+    };
+    for (name, v) in [("alpha", p.alpha), ("beta", p.beta)] {
+        if !(v > 0.0 && v < 0.5) {
+            let line = text
+                .lines()
+                .position(|l| l.trim_start().starts_with(name))
+                .map_or(1, |i| i as u64 + 1);
+            return Err(ReadError::field(
+                super::Loc::new(file, line, name),
+                format!("{v} is not a probability between 0 and 0.5"),
+                "use a small error rate such as 0.05 or 0.01 (the default)",
+            ));
+        }
+    }
+    Ok(p)
 }
 
 fn parse_offset(t: &str) -> Option<chrono::FixedOffset> {

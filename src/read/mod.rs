@@ -13,7 +13,7 @@ pub mod vocab;
 
 pub use batch::{Batch, Manifest, ResultRow};
 pub use error::{Loc, ReadError};
-pub use lab::{Compare, Lab, NotDetectedStyle, PageSize};
+pub use lab::{Compare, DetectionPower, Lab, NotDetectedStyle, PageSize, WeakPass};
 pub use register::{InForce, LimitRow, Register};
 pub use specs::{SpecLookup, SpecRow, Specs};
 pub use vocab::{DecisionRule, Kind};

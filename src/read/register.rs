@@ -22,6 +22,8 @@ pub const COLUMNS: &[Col] = &[
     opt("upper_range_unit"),
     opt("study_id"),
     opt("note"),
+    opt("sd"),
+    opt("n"),
 ];
 
 const ANALYTE: usize = 0;
@@ -37,6 +39,8 @@ const UPPER: usize = 9;
 const UPPER_UNIT: usize = 10;
 const STUDY: usize = 11;
 const NOTE: usize = 12;
+const SD: usize = 13;
+const N: usize = 14;
 
 #[derive(Debug, Clone, PartialEq)]
 pub struct LimitRow {
@@ -55,6 +59,9 @@ pub struct LimitRow {
     pub upper_range: Option<(Decimal, Unit)>,
     pub study_id: String,
     pub note: String,
+    /// The study's spike standard deviation (in `unit`) and its number of
+    /// spikes, when the register keeps them: what detection power needs.
+    pub spike_sd: Option<(Decimal, u32)>,
     /// How a report names this row: its study id, else file:line.
     pub reference: std::sync::Arc<str>,
 }
@@ -91,6 +98,37 @@ pub struct Register {
     pub rows: Vec<LimitRow>,
     /// Row indices per key, ordered by effective date.
     index: HashMap<String, Vec<usize>, crate::fasthash::Build>,
+}
+
+/// `sd` and `n` come together: a positive SD from at least 2 spikes.
+fn spike_sd(r: &super::csvtable::Row<'_>) -> Result<Option<(Decimal, u32)>, ReadError> {
+    let (sd_text, n_text) = (r.get(SD), r.get(N));
+    if sd_text.is_empty() && n_text.is_empty() {
+        return Ok(None);
+    }
+    if sd_text.is_empty() || n_text.is_empty() {
+        let missing = if sd_text.is_empty() { SD } else { N };
+        return Err(ReadError::field(
+            r.loc(missing),
+            "empty, but the row gives the other of sd and n",
+            "give both the study's spike SD and its number of spikes, or neither",
+        ));
+    }
+    let sd = r.opt_positive(SD)?;
+    let n = n_text.trim().parse::<u32>().ok().filter(|n| *n >= 2);
+    match (sd, n) {
+        (Some(sd), Some(n)) => Ok(Some((sd, n))),
+        (_, None) => Err(ReadError::field(
+            r.loc(N),
+            format!("`{n_text}` is not a whole number of spikes, 2 or more"),
+            "give the number of spike results the SD came from (7 or more for Appendix B)",
+        )),
+        (None, _) => Err(ReadError::field(
+            r.loc(SD),
+            "must be a positive number",
+            "give the standard deviation of the study's spike results",
+        )),
+    }
 }
 
 impl Register {
@@ -132,6 +170,7 @@ impl Register {
                     Some((v, u))
                 }
             };
+            let spike_sd = spike_sd(r)?;
             rows.push(LimitRow {
                 file: file.to_string(),
                 line: r.line,
@@ -147,6 +186,7 @@ impl Register {
                 upper_range,
                 study_id: r.text(STUDY),
                 note: r.text(NOTE),
+                spike_sd,
                 reference: if r.get(STUDY).is_empty() {
                     format!("{file}:{}", r.line).into()
                 } else {

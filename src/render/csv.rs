@@ -5,7 +5,7 @@ use super::Render;
 use crate::numeric::plain;
 use crate::report::{Report, ReportRow};
 
-pub const HEADER: [&str; 23] = [
+pub const HEADER: [&str; 25] = [
     "report",
     "revision",
     "lab_id",
@@ -29,6 +29,8 @@ pub const HEADER: [&str; 23] = [
     "qualifiers",
     "limits_row",
     "uncertainty",
+    "ld",
+    "beta_at_limit",
 ];
 
 pub struct Csv;
@@ -85,9 +87,11 @@ fn write_row<W: std::io::Write>(
     text(w, r.verdict.map(|v| v.name()).unwrap_or(""))?;
     text(w, &qualifiers(report, r))?;
     text(w, &r.limits_row)?;
-    match r.uncertainty {
-        Some(u) => number(w, &u)?,
-        None => number(w, &"")?,
+    for v in [r.uncertainty, r.ld, r.beta_at_limit] {
+        match v {
+            Some(v) => number(w, &v)?,
+            None => number(w, &"")?,
+        }
     }
     w.write_record(None::<&[u8]>)
 }

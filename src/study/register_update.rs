@@ -2,6 +2,7 @@
 //! rounded up, every old row kept byte for byte, written atomically.
 
 use super::mdl::MdlResult;
+use crate::numeric::decimal_of;
 use crate::numeric::{plain, round_sig_up};
 use crate::read::csvtable::read_file;
 use crate::read::register::COLUMNS;
@@ -32,13 +33,6 @@ impl UpdateError {
     }
 }
 
-/// A decimal of an f64, with 15 significant digits (all an f64 holds).
-pub fn decimal_of(x: f64) -> Option<Decimal> {
-    Decimal::from_scientific(&format!("{x:.14e}"))
-        .ok()
-        .map(|d| d.normalize())
-}
-
 /// One new register row, as text cells keyed by register column name.
 #[derive(Debug, Clone, PartialEq)]
 pub struct NewRow {
@@ -55,6 +49,9 @@ pub struct NewRow {
     pub upper_range_unit: String,
     pub study_id: String,
     pub note: String,
+    /// The spike SD (rounded up, as the limits are) and the number of spikes.
+    pub sd: Decimal,
+    pub n: usize,
 }
 
 impl NewRow {
@@ -88,6 +85,8 @@ impl NewRow {
             "upper_range" => self.upper_range.clone(),
             "upper_range_unit" => self.upper_range_unit.clone(),
             "study_id" => self.study_id.clone(),
+            "sd" => self.sd.to_string(),
+            "n" => self.n.to_string(),
             _ => self.note.clone(),
         }
     }
@@ -107,6 +106,7 @@ pub fn rows_for(
         .filter(|r| r.ok())
         .filter_map(|r| {
             let (mdl, loq) = (decimal_of(r.mdl)?, decimal_of(r.loq)?);
+            let sd = decimal_of(r.sd_spike)?;
             let before = match register.in_force(&r.analyte, &r.matrix, &r.method, effective) {
                 InForce::Row(row) => Some(row.clone()),
                 _ => None,
@@ -137,6 +137,10 @@ pub fn rows_for(
                     .unwrap_or_default(),
                 study_id: study_id.to_string(),
                 note,
+                // Rounded up: a larger SD can only make β, and so a weak
+                // pass, more likely.
+                sd: round_sig_up(sd, sig),
+                n: r.n_spike,
             })
         })
         .collect()
@@ -144,8 +148,10 @@ pub fn rows_for(
 
 /// Appends `rows` to the register at `path`: refuses a row whose key and
 /// date exist already, keeps every old byte, and replaces the file only
-/// once the new one is complete on disk.
-pub fn append(path: &Path, rows: &[NewRow]) -> Result<(), UpdateError> {
+/// once the new one is complete on disk. Returns the columns of the rows
+/// that the register's header has no place for (`sd` and `n` in a register
+/// from before detection power), so the caller can say so.
+pub fn append(path: &Path, rows: &[NewRow]) -> Result<Vec<&'static str>, UpdateError> {
     let file = path.display().to_string();
     let bytes = read_file(path)?;
     let register = Register::parse(&file, &bytes)?;
@@ -184,6 +190,10 @@ pub fn append(path: &Path, rows: &[NewRow]) -> Result<(), UpdateError> {
         }
     }
     debug_assert!(header.iter().all(|h| COLUMNS.iter().any(|c| c.name == h)));
+    let dropped: Vec<&'static str> = ["sd", "n"]
+        .into_iter()
+        .filter(|c| !header.iter().any(|h| h == c))
+        .collect();
     let crlf = bytes.windows(2).any(|w| w == b"\r\n");
     let mut w = csv::WriterBuilder::new()
         .terminator(if crlf {
@@ -230,7 +240,8 @@ pub fn append(path: &Path, rows: &[NewRow]) -> Result<(), UpdateError> {
             path: file.clone(),
             source,
         }
-    })
+    })?;
+    Ok(dropped)
 }
 
 #[cfg(test)]

@@ -140,6 +140,8 @@ mod tests {
             verdict: Some(verdict),
             uncertainty_pct: None,
             uncertainty: None,
+            ld: None,
+            beta_at_limit: None,
             qualifiers: Vec::new(),
             limits_row: "S".into(),
         }

@@ -54,6 +54,14 @@ pub struct Context {
     changed_results: String,
     changed_list: Vec<String>,
     has_uncertainty: bool,
+    /// Detection power: any result with β; the weak passes, each in words.
+    has_power: bool,
+    has_low_power: bool,
+    has_weak: bool,
+    power_items: Vec<String>,
+    /// The lab's β as "N in 100", and 100 − that.
+    beta_in_100: String,
+    detect_in_100: String,
 }
 
 /// "lowest (id) to highest (id)", per unit.
@@ -128,12 +136,14 @@ pub fn context(report: &Report) -> Context {
         has_over_range: has(State::OverRange),
         has_inconclusive: rows
             .iter()
-            .any(|r| r.verdict == Some(Verdict::Inconclusive)),
+            .any(|r| r.verdict == Some(Verdict::Inconclusive) && !weak(r, h.detection_power.beta)),
         mdl_range: range(rows, |r| r.mdl),
         loq_range: range(rows, |r| r.loq),
         inconclusive_items: rows
             .iter()
-            .filter(|r| r.verdict == Some(Verdict::Inconclusive))
+            .filter(|r| {
+                r.verdict == Some(Verdict::Inconclusive) && !weak(r, h.detection_power.beta)
+            })
             .map(|r| format!("{} {}", r.lab_id, r.analyte))
             .collect::<Vec<_>>()
             .join(", "),
@@ -162,7 +172,66 @@ pub fn context(report: &Report) -> Context {
             .unwrap_or_default(),
         changed_list: replaces.map(|r| r.changed.clone()).unwrap_or_default(),
         has_uncertainty: rows.iter().any(|r| r.uncertainty.is_some()),
+        has_power: rows.iter().any(|r| r.beta_at_limit.is_some()),
+        has_low_power: qual(crate::report::LOW_POWER),
+        has_weak: rows.iter().any(|r| weak(r, h.detection_power.beta)),
+        power_items: rows
+            .iter()
+            .filter(|r| weak(r, h.detection_power.beta))
+            .map(|r| power_item(r, h.detection_power.beta))
+            .collect(),
+        beta_in_100: in_100(h.detection_power.beta),
+        detect_in_100: in_100(1.0 - h.detection_power.beta),
     }
+}
+
+/// A result that would pass on its sample limits but whose β at the limit
+/// is above the lab's: qualified low-power, or made inconclusive.
+fn weak(r: &ReportRow, lab_beta: f64) -> bool {
+    let basis = match r.state {
+        State::NotDetected => r.mdl_unrounded,
+        _ => r.loq_unrounded,
+    };
+    r.spec_limit.is_some_and(|l| basis <= l)
+        && r.beta_at_limit
+            .and_then(|b| b.to_string().parse::<f64>().ok())
+            .is_some_and(|b| b > lab_beta)
+}
+
+/// A probability as "about N" times in 100, in words a client can use.
+fn in_100(p: f64) -> String {
+    let n = (p * 100.0).round();
+    if n < 1.0 {
+        "fewer than 1".into()
+    } else {
+        format!("{n}")
+    }
+}
+
+/// One weak pass in words, with its numbers.
+fn power_item(r: &ReportRow, lab_beta: f64) -> String {
+    let beta = r.beta_at_limit.unwrap_or_default();
+    let b = beta.to_string().parse::<f64>().unwrap_or(f64::NAN);
+    let limit = r.spec_limit.map(crate::numeric::plain).unwrap_or_default();
+    let ld = r
+        .ld
+        .map(|d| {
+            format!(
+                "; it would find {} at least {} times in 100 from about {d} {} (its detection limit L_D)",
+                r.analyte,
+                in_100(1.0 - lab_beta),
+                r.unit
+            )
+        })
+        .unwrap_or_default();
+    format!(
+        "{} {}: if the item contained {} at exactly the limit ({limit} {}), this test would have missed it about {} times in 100 (β = {beta}){ld}.",
+        r.lab_id,
+        r.analyte,
+        r.analyte,
+        r.unit,
+        in_100(b)
+    )
 }
 
 /// The one-letter qualifier codes the results table prints; the legend
@@ -175,6 +244,7 @@ pub fn qualifier_codes(r: &ReportRow) -> String {
             qc::MATRIX_EFFECT => "M",
             qc::IMPRECISE => "I",
             qc::QC_EXCEPTION => "X",
+            crate::report::LOW_POWER => "P",
             _ => "?",
         })
         .collect::<Vec<_>>()
