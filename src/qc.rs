@@ -976,4 +976,268 @@ mod tests {
         assert!(!within(d("79.99"), w));
         assert!(!within(d("120.01"), w));
     }
+
+    // In-memory batches for the rules below (common practice, no source,
+    // unless a test says otherwise). Solid paint: mg/kg = reading / 2.
+    const LIMITS: &str = "analyte,matrix,method,unit,mdl,loq,effective_from,upper_range,upper_range_unit\n\
+        Pb,paint,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
+        Cd,paint,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
+        Pb,metal,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
+        Pb,émail,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
+        Pb,glaçure,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n";
+    const HEAD: &str = "lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,spike_added,parent_id\n";
+
+    fn line(
+        id: &str,
+        kind: &str,
+        analyte: &str,
+        matrix: &str,
+        reading: &str,
+        rest: &str,
+    ) -> String {
+        format!(
+            "{id},{kind},{analyte},{matrix},6010D,{reading},ug/L,1,0.100,50,2026-11-13,{rest}\n"
+        )
+    }
+
+    fn build(
+        required: &str,
+        spec_limit: &str,
+        rows: &str,
+    ) -> Result<crate::report::Report, EvalError> {
+        let lab = format!("name='L'\naddress='A'\nsignatory='S'\n[qc]\nrequired=[{required}]\n");
+        let ws = Workspace {
+            root: ".".into(),
+            lab_text: lab.clone(),
+            qc_text: None,
+            lab: crate::read::Lab::parse("lab.toml", &lab).unwrap(),
+            register: crate::read::Register::parse("limits.csv", LIMITS.as_bytes()).unwrap(),
+            specs: crate::read::Specs::parse(
+                "specs.csv",
+                format!("spec,analyte,matrix,limit,unit,effective_from\nL,Pb,,{spec_limit},mg/kg,2009-01-01\n").as_bytes(),
+            )
+            .unwrap(),
+        };
+        let manifest = "batch='B'\nreport='R'\nclient_name='c'\nclient_address='a'\nclient_contact='p'\nreceived_on=2026-11-10\nresults='r.csv'\n";
+        let batch = crate::read::Batch {
+            dir: ".".into(),
+            manifest_file: "batch.toml".into(),
+            manifest_text: manifest.into(),
+            manifest: crate::read::Manifest::parse("batch.toml", manifest).unwrap(),
+            results_file: "r.csv".into(),
+            results_bytes: format!("{HEAD}{rows}").into_bytes(),
+        };
+        let run = crate::report::RunInfo {
+            issued_at: chrono::DateTime::from_timestamp(0, 0).unwrap(),
+            tool_version: "t".into(),
+        };
+        crate::report::build(&ws, &batch, 0, &run)
+    }
+
+    fn quals(r: &crate::report::Report, id: &str, analyte: &str) -> Vec<String> {
+        r.rows
+            .iter()
+            .find(|x| x.lab_id == id && &*x.analyte == analyte)
+            .unwrap()
+            .qualifiers
+            .clone()
+    }
+
+    fn check<'r>(r: &'r crate::report::Report, name: &str) -> &'r QcCheck {
+        r.qc_checks
+            .iter()
+            .find(|c| c.check == name)
+            .unwrap_or_else(|| panic!("no {name}: {:?}", r.qc_checks))
+    }
+
+    #[test]
+    fn a_blank_covers_its_own_analyte_method_and_matrix_in_any_case() {
+        // S1 Pb at 50 mg/kg; each blank at 20 mg/kg fails (above the MDL of 4).
+        let s1 = line("S1", "sample", "Pb", "paint", "100", "L,,");
+        for (blank, qualified) in [
+            (line("MB", "method-blank", "Pb", "paint", "40", ",,"), true),
+            (line("MB", "method-blank", "pb", "PAINT", "40", ",,"), true),
+            (line("MB", "method-blank", "Cd", "paint", "40", ",,"), false),
+            (line("MB", "method-blank", "Pb", "metal", "40", ",,"), false),
+        ] {
+            let r = build("", "90", &(s1.clone() + &blank)).unwrap();
+            let q = quals(&r, "S1", "Pb");
+            assert_eq!(
+                q.contains(&BLANK_AFFECTED.to_string()),
+                qualified,
+                "{blank}: {q:?}"
+            );
+        }
+        // Non-ASCII matrix names compare without case too, and differ when they differ.
+        let s = line("S1", "sample", "Pb", "émail", "100", "L,,");
+        let r = build(
+            "",
+            "90",
+            &(s.clone() + &line("MB", "method-blank", "Pb", "ÉMAIL", "40", ",,")),
+        )
+        .unwrap();
+        assert_eq!(quals(&r, "S1", "Pb"), [BLANK_AFFECTED]);
+        let r = build(
+            "",
+            "90",
+            &(s + &line("MB", "method-blank", "Pb", "glaçure", "40", ",,")),
+        )
+        .unwrap();
+        assert!(quals(&r, "S1", "Pb").is_empty());
+    }
+
+    #[test]
+    fn blank_edges_and_one_qualifier_however_many_blanks_fail() {
+        let s1 = line("S1", "sample", "Pb", "paint", "100", "L,,");
+        // A blank exactly at the MDL (8 µg/L = 4 mg/kg) fails: it must be below.
+        let r = build(
+            "",
+            "60",
+            &(s1.clone() + &line("MB", "method-blank", "Pb", "paint", "8", ",,")),
+        )
+        .unwrap();
+        let c = check(&r, "method blank");
+        assert_eq!(c.outcome, Outcome::Fail);
+        // 5 % of a limit of 80 equals the MDL: the MDL stays the basis.
+        let r = build(
+            "",
+            "80",
+            &(s1.clone() + &line("MB", "method-blank", "Pb", "paint", "1", ",,")),
+        )
+        .unwrap();
+        assert_eq!(check(&r, "method blank").window, "< 4.00 mg/kg (MDL)");
+        // 5 % of 200 = 10 > 4: the limit governs.
+        let r = build(
+            "",
+            "200",
+            &(s1.clone() + &line("MB", "method-blank", "Pb", "paint", "1", ",,")),
+        )
+        .unwrap();
+        assert_eq!(
+            check(&r, "method blank").window,
+            "< 10.0 mg/kg (5 % of the limit)"
+        );
+        // A result exactly at 10 × the blank (20 mg/kg × 10 = 200) is not affected.
+        let s = line("S2", "sample", "Pb", "paint", "400", "L,,");
+        let r = build(
+            "",
+            "90",
+            &(s + &line("MB", "method-blank", "Pb", "paint", "40", ",,")),
+        )
+        .unwrap();
+        assert!(quals(&r, "S2", "Pb").is_empty());
+        // Two failing blanks qualify once.
+        let both = s1
+            + &line("MB-1", "method-blank", "Pb", "paint", "40", ",,")
+            + &line("MB-2", "method-blank", "Pb", "paint", "40", ",,");
+        let r = build("", "90", &both).unwrap();
+        assert_eq!(quals(&r, "S1", "Pb"), [BLANK_AFFECTED]);
+    }
+
+    #[test]
+    fn a_spike_of_zero_is_refused() {
+        let rows = line("S1", "sample", "Pb", "paint", "100", "L,,")
+            + &line("LCS", "lcs", "Pb", "paint", "100", ",0,");
+        let e = build("", "90", &rows).unwrap_err();
+        assert!(
+            e.to_string().contains("spike_added") && e.to_string().contains("greater than zero"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn spikes_pair_up_on_their_parent_and_analyte() {
+        // S1 has Pb at 10 mg/kg and Cd at 100 mg/kg; a duplicate of S1 Pb
+        // agrees with the Pb result, not the Cd one.
+        let mut rows = line("S1", "sample", "Pb", "paint", "20", "L,,");
+        rows += &line("S1", "sample", "Cd", "paint", "200", ",,");
+        rows += &line("DUP", "duplicate", "Pb", "paint", "20", ",,S1");
+        // MS and MSD at 30 and 31 mg/kg after adding 20: recoveries 100 and 105 %.
+        rows += &line("MS", "matrix-spike", "Pb", "paint", "60", ",20,S1");
+        rows += &line("MSD", "matrix-spike-dup", "Pb", "paint", "62", ",20,S1");
+        let r = build("", "90", &rows).unwrap();
+        assert_eq!(check(&r, "duplicate difference").outcome, Outcome::Pass);
+        assert_eq!(check(&r, "matrix spike recovery").value, "100 %");
+        assert_eq!(check(&r, "spike duplicate recovery").value, "105 %");
+        // 30 and 31 are below 5 × LOQ (62.5): judged by difference, not RPD.
+        let pair = check(&r, "spike duplicate difference");
+        assert_eq!(pair.rows, "MS / MSD");
+        assert_eq!(pair.outcome, Outcome::Pass);
+        // Well above 5 × LOQ the pair is judged by RPD.
+        let mut rows = line("S1", "sample", "Pb", "paint", "200", "L,,");
+        rows += &line("MS", "matrix-spike", "Pb", "paint", "400", ",100,S1");
+        rows += &line("MSD", "matrix-spike-dup", "Pb", "paint", "404", ",100,S1");
+        let r = build("", "90", &rows).unwrap();
+        assert_eq!(check(&r, "spike duplicate RPD").outcome, Outcome::Pass);
+    }
+
+    #[test]
+    fn a_spike_without_its_parent_is_an_error_even_beside_a_blocked_sample() {
+        // S9 has no limits (method unknown to the register) and is blocked;
+        // a spike naming a parent that does not exist is still an error.
+        let mut rows = line("S1", "sample", "Pb", "paint", "100", "L,,");
+        rows += "S9,sample,Pb,paint,6010X,100,ug/L,1,0.100,50,2026-11-13,L,,\n";
+        rows += &line("MS", "matrix-spike", "Pb", "paint", "100", ",20,NOPE");
+        let e = build("", "90", &rows).unwrap_err();
+        assert!(
+            e.to_string().contains("NOPE has no Pb sample result"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn a_failed_ccv_holds_only_what_its_own_passing_checks_bracket() {
+        // Pb: S0, CCV-1 pass, S1, CCV-2 fail, (a Cd CCV passes), S2, CCV-3
+        // pass, S3. The failure holds what ran since the last passing check
+        // and until the next one (SW-846 6010D's CCV bracketing, from memory).
+        let ccv = |id: &str, analyte: &str, reading: &str| {
+            format!("{id},ccv,{analyte},paint,6010D,{reading},ug/L,1,,,2026-11-13,,100,\n")
+        };
+        let mut rows = line("S0", "sample", "Pb", "paint", "100", "L,,");
+        rows += &ccv("CCV-1", "Pb", "100");
+        rows += &line("S1", "sample", "Pb", "paint", "100", "L,,");
+        rows += &ccv("CCV-2", "Pb", "80");
+        rows += &ccv("CCV-C", "Cd", "100");
+        rows += &line("S2", "sample", "Pb", "paint", "100", "L,,");
+        rows += &ccv("CCV-3", "Pb", "100");
+        rows += &line("S3", "sample", "Pb", "paint", "100", "L,,");
+        let r = build("", "90", &rows).unwrap();
+        let failed = r.qc_checks.iter().find(|c| c.rows == "CCV-2").unwrap();
+        let held: Vec<&str> = failed
+            .affected
+            .iter()
+            .map(|&i| r.rows[i].lab_id.as_str())
+            .collect();
+        assert_eq!(held, ["S1", "S2"]);
+        assert!(failed.blocking);
+    }
+
+    #[test]
+    fn a_required_check_counts_only_of_its_kind_analyte_and_method() {
+        let s1 = line("S1", "sample", "Pb", "paint", "100", "L,,");
+        let missing =
+            |r: &crate::report::Report| r.qc_checks.iter().any(|c| c.outcome == Outcome::Missing);
+        // Only a method blank, or an LCS of another analyte: the Pb LCS is missing.
+        for other in [
+            line("MB", "method-blank", "Pb", "paint", "1", ",,"),
+            line("LCS", "lcs", "Cd", "paint", "100", ",50,"),
+        ] {
+            let r = build("\"lcs\"", "90", &(s1.clone() + &other)).unwrap();
+            assert!(missing(&r), "{other}");
+        }
+        // An LCS written in other case counts.
+        let lcs = "LCS,lcs,pb,paint,6010d,100,ug/L,1,0.100,50,2026-11-13,,50,\n";
+        let r = build("\"lcs\"", "90", &(s1 + lcs)).unwrap();
+        assert!(!missing(&r), "{:?}", r.qc_checks);
+    }
+
+    #[test]
+    fn one_result_above_five_loq_and_one_below_is_judged_by_difference() {
+        let c = Criteria::default();
+        // LOQ 2: floor 10. 12 is above, 9 below: the difference rule (3 > 2 fails).
+        let (kind, _, _, pass) = precision(d("12"), d("9"), d("2"), Unit::MgPerKg, &c).unwrap();
+        assert_eq!((kind, pass), ("difference", false));
+        let (kind, _, _, _) = precision(d("9"), d("12"), d("2"), Unit::MgPerKg, &c).unwrap();
+        assert_eq!(kind, "difference");
+    }
 }
