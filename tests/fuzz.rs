@@ -193,6 +193,9 @@ fn workspace_reader(name: &str, file: &str, n: u32) {
     t.demo_workspace("ws");
     let ws_dir = t.path("ws");
     let target = ws_dir.join(file);
+    if file == "qc.toml" {
+        std::fs::write(&target, QC_SEED).unwrap();
+    }
     let valid = std::fs::read(&target).unwrap_or_default();
     let batch_dir = ws_dir.join("furniture-jewellery-2611-041");
     let run = limen::RunInfo {
@@ -243,7 +246,105 @@ fn workspace_reader(name: &str, file: &str, n: u32) {
     std::fs::write(&target, &valid).unwrap();
 }
 
+/// The same readers through their parsers on bytes in memory, for the long
+/// run (the file round trip above dominates the time otherwise). Text files
+/// that are not UTF-8 are refused by `Workspace::load` before parsing.
+fn workspace_reader_in_memory(name: &str, file: &str, n: u32) {
+    let demo = repo().join("demo-batches");
+    let read = |f: &str| std::fs::read(demo.join(f)).unwrap_or_default();
+    let batch_dir = "furniture-jewellery-2611-041";
+    let files = [
+        "lab.toml".to_string(),
+        "qc.toml".to_string(),
+        "limits.csv".to_string(),
+        "specs.csv".to_string(),
+        format!("{batch_dir}/batch.toml"),
+        format!("{batch_dir}/results.csv"),
+    ];
+    let mut originals: Vec<Vec<u8>> = files.iter().map(|f| read(f)).collect();
+    if file == "qc.toml" {
+        originals[1] = QC_SEED.to_vec();
+    }
+    let k = files.iter().position(|f| f == file).unwrap();
+    let run = limen::RunInfo {
+        issued_at: chrono::DateTime::from_timestamp(0, 0).unwrap(),
+        tool_version: "t".into(),
+    };
+    fuzz(name, &originals[k], n, &mut |bytes| {
+        let mut texts = originals.clone();
+        texts[k] = bytes.to_vec();
+        let text = |i: usize| String::from_utf8(texts[i].clone());
+        let outcome = (|| -> Result<(), limen::Error> {
+            let bad = |f: &str| {
+                limen::read::ReadError::field(
+                    limen::read::Loc::file(f),
+                    "not valid UTF-8 text",
+                    "save the file as UTF-8",
+                )
+            };
+            let lab_text = text(0).map_err(|_| bad("lab.toml"))?;
+            let qc_text = if texts[1].is_empty() {
+                None
+            } else {
+                Some(text(1).map_err(|_| bad("qc.toml"))?)
+            };
+            let lab = limen::read::lab_from(
+                "lab.toml",
+                &lab_text,
+                qc_text.as_deref().map(|t| ("qc.toml", t)),
+            )?;
+            let ws = Workspace {
+                root: ".".into(),
+                lab_text,
+                qc_text,
+                lab,
+                register: limen::read::Register::parse("limits.csv", &texts[2])?,
+                specs: limen::read::Specs::parse("specs.csv", &texts[3])?,
+            };
+            let manifest_text = text(4).map_err(|_| bad("batch.toml"))?;
+            let manifest = limen::read::Manifest::parse("batch.toml", &manifest_text)?;
+            let batch = Batch {
+                dir: ".".into(),
+                manifest_file: "batch.toml".into(),
+                manifest_text,
+                manifest,
+                results_file: "results.csv".into(),
+                results_bytes: texts[5].clone(),
+            };
+            limen::report::build(&ws, &batch, 0, &run)?;
+            Ok(())
+        })();
+        if let Err(e) = outcome {
+            let text = e.to_string();
+            let file_name = Path::new(file).file_name().unwrap().to_string_lossy();
+            prop_assert!(
+                text.contains(file_name.as_ref())
+                    || text
+                        .split(':')
+                        .nth(1)
+                        .is_some_and(|l| l.trim().parse::<u64>().is_ok()),
+                "the error must name {file_name}, or another file and line: {text}"
+            );
+        }
+        Ok(())
+    });
+}
+
+/// A valid qc.toml to damage (the demo keeps its windows at the defaults).
+const QC_SEED: &[u8] = b"required = [\"method-blank\", \"lcs\"]\nlcs_recovery_pct = [80, 120]\nrpd_max_pct = 20\n[methods.\"6010D\"]\nccv_recovery_pct = [90, 110]\n";
+
 fn run_all(n: u32) {
+    if n > 10_000 {
+        workspace_reader_in_memory("lab", "lab.toml", n);
+        workspace_reader_in_memory("qc", "qc.toml", n);
+        workspace_reader_in_memory("limits", "limits.csv", n);
+        workspace_reader_in_memory("specs", "specs.csv", n);
+        workspace_reader_in_memory("batch", "furniture-jewellery-2611-041/batch.toml", n);
+        workspace_reader_in_memory("results", "furniture-jewellery-2611-041/results.csv", n);
+        study_readers(n);
+        ledger_and_verify(n);
+        return;
+    }
     workspace_reader("lab", "lab.toml", n);
     workspace_reader("qc", "qc.toml", n);
     workspace_reader("limits", "limits.csv", n);
