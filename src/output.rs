@@ -116,6 +116,19 @@ pub fn sweep(dir: &Path) -> Vec<String> {
     removed
 }
 
+/// A file path as the folder it is in ("." for a bare name) and its name.
+pub fn dir_and_name(path: &Path) -> (&Path, String) {
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    (dir, name)
+}
+
 /// Writes `bytes` under `name` in `dir` through a synced temporary file;
 /// never replaces an existing file.
 pub fn write_new(dir: &Path, name: &str, bytes: &[u8]) -> Result<PathBuf, OutputError> {

@@ -321,14 +321,7 @@ fn register_request(
 
 /// Writes a new file at `path` (never replacing one) and says so.
 fn write_new_at(path: &Path, bytes: &[u8]) -> Result<(), Error> {
-    let dir = path
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
+    let (dir, name) = limen::output::dir_and_name(path);
     limen::output::write_new(dir, &name, bytes)?;
     println!("wrote {}", path.display());
     Ok(())
