@@ -111,4 +111,20 @@ mod tests {
         assert_eq!(beta_at_limit(f64::NAN, 2.0, 0.3, 7), None);
         assert_eq!(detection_limit(-1.0, 7, 0.01, 0.01), None);
     }
+
+    // Past 1000 degrees of freedom the normal distribution is used; at 1000
+    // Student's t still is (the switch must not move results silently).
+    #[test]
+    fn the_normal_takes_over_only_past_1000_degrees_of_freedom() {
+        let x = -1.7;
+        let normal = Normal::new(0.0, 1.0).unwrap().cdf(x);
+        let t1000 = StudentsT::new(0.0, 1.0, 1000.0).unwrap().cdf(x);
+        assert_ne!(normal, t1000);
+        assert_eq!(beta_at_limit(0.0, 1.7, 1.0, 1001).unwrap(), t1000);
+        assert_eq!(beta_at_limit(0.0, 1.7, 1.0, 5001).unwrap(), normal);
+        let z = Normal::new(0.0, 1.0).unwrap().inverse_cdf(0.95);
+        let t = StudentsT::new(0.0, 1.0, 1000.0).unwrap().inverse_cdf(0.95);
+        assert_eq!(detection_limit(1.0, 5001, 0.05, 0.05).unwrap(), 2.0 * z);
+        assert_eq!(detection_limit(1.0, 1001, 0.05, 0.05).unwrap(), 2.0 * t);
+    }
 }
