@@ -110,6 +110,8 @@ mod tests {
         assert_eq!(beta_at_limit(1.0, 2.0, 0.3, 1), None);
         assert_eq!(beta_at_limit(f64::NAN, 2.0, 0.3, 7), None);
         assert_eq!(detection_limit(-1.0, 7, 0.01, 0.01), None);
+        assert_eq!(detection_limit(0.0, 7, 0.01, 0.01), None);
+        assert_eq!(detection_limit(1.0, 1, 0.01, 0.01), None);
     }
 
     // Past 1000 degrees of freedom the normal distribution is used; at 1000
