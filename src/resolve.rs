@@ -419,7 +419,8 @@ mod tests {
                           Pb,paint,6010D,ug/L,2,6,2025-01-01,1000,ug/L\n";
     const SPECS: &str = "spec,analyte,matrix,limit,unit,citation,effective_from\n\
                          P,Pb,paint,0.009,%,test limit,2009-01-01\n\
-                         L,Pb,paint,5,ug/L,liquid limit,2009-01-01\n";
+                         L,Pb,paint,5,ug/L,liquid limit,2009-01-01\n\
+                         F,Pb,paint,50,mg/kg,future limit,2027-01-01\n";
 
     fn resolved<'w>(row: &ResultRow, ws: &'w Workspace) -> Resolved<'w> {
         match resolve(row, ws).unwrap() {
@@ -466,9 +467,20 @@ mod tests {
             "{e}"
         );
         assert!(e.hint().contains("mass fraction"), "{}", e.hint());
-        // An unknown spec blocks with a problem, not an error.
+        // An unknown spec, or one not yet in force, blocks with a problem
+        // that says which.
+        let blocked = |row: &ResultRow| match resolve(row, &ws) {
+            Ok(Resolution::Blocked(p)) => p.message,
+            _ => panic!("must block"),
+        };
         row.spec = Some("NOPE".into());
-        assert!(matches!(resolve(&row, &ws), Ok(Resolution::Blocked(_))));
+        assert_eq!(blocked(&row), "spec `NOPE` is not in specs.csv");
+        row.spec = Some("F".into());
+        let m = blocked(&row);
+        assert!(
+            m.contains("in force on 2026-11-13") && m.contains("2027-01-01"),
+            "{m}"
+        );
     }
 
     #[test]

@@ -265,5 +265,10 @@ mod tests {
         assert_eq!(c.to_string(), "2.50");
         let c = convert(d("0.600"), Unit::Ppm, Unit::UgPerG).unwrap();
         assert_eq!(c.to_string(), "0.600");
+        // Even the largest decimal converts, as no arithmetic is done.
+        assert_eq!(
+            convert(Decimal::MAX, Unit::MgPerL, Unit::UgPerMl),
+            Some(Decimal::MAX)
+        );
     }
 }
