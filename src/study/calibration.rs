@@ -130,4 +130,22 @@ mod tests {
         let two = b"level,response\n1,2\n1,2.1\n2,4\n2,4.2\n";
         assert!(compute("c.csv", two, Sigma::Residual).is_err());
     }
+
+    #[test]
+    fn three_levels_make_a_line_and_each_sigma_has_its_name() {
+        let r = compute(
+            "c.csv",
+            b"level,response\n1,2.0\n2,4.1\n3,5.9\n",
+            Sigma::Residual,
+        );
+        assert!(r.is_ok(), "{:?}", r.err());
+        let e = compute(
+            "c.csv",
+            b"level,response\n1,2.0\n2,4.1\n2,4.0\n",
+            Sigma::Residual,
+        );
+        assert!(e.unwrap_err().to_string().contains("2 distinct level(s)"));
+        assert_eq!(Sigma::Residual.name(), "residual SD of the line");
+        assert_eq!(Sigma::Intercept.name(), "SD of the intercept");
+    }
 }

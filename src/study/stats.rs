@@ -180,4 +180,25 @@ mod tests {
         assert!((l.intercept_sd - 0.182666).abs() < 1e-6);
         assert!((l.r_squared - 0.997661).abs() < 1e-6);
     }
+
+    // The sample SD needs two values; with two it is |a − b| / √2 (by hand).
+    #[test]
+    fn sd_needs_two_values() {
+        assert!(sd(&[1.0]).is_nan());
+        assert!((sd(&[1.0, 3.0]) - 2.0_f64.sqrt()).abs() < 1e-12);
+    }
+
+    // Three values are enough for Grubbs' test (ASTM E178 tabulates n = 3,
+    // two-sided α = 0.05: 1.154 to three places, from memory). [0, 0, 1]
+    // gives the largest G possible for n = 3, (n − 1)/√n = 1.1547 (by hand),
+    // just above it: an outlier.
+    #[test]
+    fn grubbs_runs_from_three_values() {
+        assert_eq!(grubbs_outlier(&[1.0, 2.0]), None);
+        assert!((grubbs_critical(3, 0.05) - 1.1543).abs() < 0.0001);
+        let (i, g, _) = grubbs_outlier(&[0.0, 0.0, 1.0]).expect("an outlier at n = 3");
+        assert_eq!(i, 2);
+        assert!((g - 2.0 / 3.0_f64.sqrt()).abs() < 1e-9);
+        assert_eq!(grubbs_outlier(&[5.0, 5.0, 5.0]), None);
+    }
 }
