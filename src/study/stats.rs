@@ -201,4 +201,13 @@ mod tests {
         assert!((g - 2.0 / 3.0_f64.sqrt()).abs() < 1e-9);
         assert_eq!(grubbs_outlier(&[5.0, 5.0, 5.0]), None);
     }
+
+    // A line through three exact points (by hand): y = 1 + 2x, r² = 1.
+    #[test]
+    fn three_points_fit_a_line() {
+        let l = fit(&[1.0, 2.0, 3.0], &[3.0, 5.0, 7.0]).expect("3 points suffice");
+        assert!((l.slope - 2.0).abs() < 1e-12 && (l.intercept - 1.0).abs() < 1e-12);
+        assert_eq!(fit(&[1.0, 2.0], &[3.0, 5.0]).map(|l| l.n), None);
+        assert!(fit(&[1.0, 2.0, 3.0], &[3.0, 5.0]).is_none());
+    }
 }
