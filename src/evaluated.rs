@@ -77,6 +77,9 @@ pub struct ReportRow {
     /// reported not detected. Both rounded as printed.
     pub ld: Option<Decimal>,
     pub beta_at_limit: Option<Decimal>,
+    /// A pass on the sample limits whose β exceeds the lab's: qualified
+    /// low-power or made inconclusive, as the lab chose.
+    pub weak_pass: bool,
     pub qualifiers: Vec<String>,
     /// The register row used: study id, else file:line.
     pub limits_row: Arc<str>,

@@ -202,16 +202,13 @@ fn classify_row(
     let (mdl, loq) = (round_sig(r.mdl, sig), round_sig(r.loq, sig));
     let mut verdict = verdict_of(&row, r, header, state, (rounded, mdl, loq))?;
     let (ld, beta_at_limit, beta) = power_at_limit(r, state, header);
+    let p = header.detection_power;
+    let weak_pass = verdict == Some(classify::Verdict::Pass) && beta.is_some_and(|b| b > p.beta);
     let mut qualifiers = Vec::new();
-    if let Some(b) = beta {
-        let p = header.detection_power;
-        if verdict == Some(classify::Verdict::Pass) && b > p.beta {
-            match p.weak_pass {
-                crate::read::WeakPass::Qualify => qualifiers.push(LOW_POWER.to_string()),
-                crate::read::WeakPass::Inconclusive => {
-                    verdict = Some(classify::Verdict::Inconclusive)
-                }
-            }
+    if weak_pass {
+        match p.weak_pass {
+            crate::read::WeakPass::Qualify => qualifiers.push(LOW_POWER.to_string()),
+            crate::read::WeakPass::Inconclusive => verdict = Some(classify::Verdict::Inconclusive),
         }
     }
     let uncertainty = match (state, row.uncertainty_pct) {
@@ -271,6 +268,7 @@ fn classify_row(
         uncertainty,
         ld,
         beta_at_limit,
+        weak_pass,
         qualifiers,
         limits_row: r.limits.reference.clone(),
     })

@@ -142,6 +142,7 @@ mod tests {
             uncertainty: None,
             ld: None,
             beta_at_limit: None,
+            weak_pass: false,
             qualifiers: Vec::new(),
             limits_row: "S".into(),
         }

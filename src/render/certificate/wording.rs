@@ -136,14 +136,12 @@ pub fn context(report: &Report) -> Context {
         has_over_range: has(State::OverRange),
         has_inconclusive: rows
             .iter()
-            .any(|r| r.verdict == Some(Verdict::Inconclusive) && !weak(r, h.detection_power.beta)),
+            .any(|r| r.verdict == Some(Verdict::Inconclusive) && !r.weak_pass),
         mdl_range: range(rows, |r| r.mdl),
         loq_range: range(rows, |r| r.loq),
         inconclusive_items: rows
             .iter()
-            .filter(|r| {
-                r.verdict == Some(Verdict::Inconclusive) && !weak(r, h.detection_power.beta)
-            })
+            .filter(|r| r.verdict == Some(Verdict::Inconclusive) && !r.weak_pass)
             .map(|r| format!("{} {}", r.lab_id, r.analyte))
             .collect::<Vec<_>>()
             .join(", "),
@@ -174,28 +172,15 @@ pub fn context(report: &Report) -> Context {
         has_uncertainty: rows.iter().any(|r| r.uncertainty.is_some()),
         has_power: rows.iter().any(|r| r.beta_at_limit.is_some()),
         has_low_power: qual(crate::report::LOW_POWER),
-        has_weak: rows.iter().any(|r| weak(r, h.detection_power.beta)),
+        has_weak: rows.iter().any(|r| r.weak_pass),
         power_items: rows
             .iter()
-            .filter(|r| weak(r, h.detection_power.beta))
+            .filter(|r| r.weak_pass)
             .map(|r| power_item(r, h.detection_power.beta))
             .collect(),
         beta_in_100: in_100(h.detection_power.beta),
         detect_in_100: in_100(1.0 - h.detection_power.beta),
     }
-}
-
-/// A result that would pass on its sample limits but whose β at the limit
-/// is above the lab's: qualified low-power, or made inconclusive.
-fn weak(r: &ReportRow, lab_beta: f64) -> bool {
-    let basis = match r.state {
-        State::NotDetected => r.mdl_unrounded,
-        _ => r.loq_unrounded,
-    };
-    r.spec_limit.is_some_and(|l| basis <= l)
-        && r.beta_at_limit
-            .and_then(|b| b.to_string().parse::<f64>().ok())
-            .is_some_and(|b| b > lab_beta)
 }
 
 /// A probability as "about N" times in 100, in words a client can use.
