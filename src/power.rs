@@ -44,11 +44,20 @@ pub fn beta_at_limit(mdl: f64, limit: f64, sd: f64, n: u32) -> Option<f64> {
 /// both with n − 1 degrees of freedom: the true amount that is detected
 /// with probability 1 − β.
 pub fn detection_limit(sd: f64, n: u32, alpha: f64, beta: f64) -> Option<f64> {
-    if !(sd.is_finite() && sd > 0.0 && n >= 2) {
+    if !(sd.is_finite() && sd > 0.0) {
+        return None;
+    }
+    Some(ld_factor(n, alpha, beta)? * sd)
+}
+
+/// The multiplier of s in L_D, t(1 − α) + t(1 − β): it depends on the
+/// spike count and the lab's rates only, so a batch computes it once per n.
+pub fn ld_factor(n: u32, alpha: f64, beta: f64) -> Option<f64> {
+    if n < 2 {
         return None;
     }
     let df = f64::from(n - 1);
-    Some((upper_quantile(1.0 - alpha, df)? + upper_quantile(1.0 - beta, df)?) * sd)
+    Some(upper_quantile(1.0 - alpha, df)? + upper_quantile(1.0 - beta, df)?)
 }
 
 #[cfg(test)]

@@ -148,6 +148,9 @@ pub fn build(
     let mut limits_used: std::collections::BTreeMap<u64, crate::read::LimitRow> =
         Default::default();
     let mut specs_used: std::collections::BTreeMap<u64, crate::read::SpecRow> = Default::default();
+    // L_D's t multiplier per spike count: the t quantiles are costly and the
+    // same for every row of a study.
+    let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
     each_result(&batch.results_file, &batch.results_bytes, |row| {
         if row.kind != Kind::Sample {
             qc.push(row);
@@ -168,7 +171,13 @@ pub fn build(
                 if over_range {
                     problems.push(over_range_problem(&row, &r));
                 }
-                rows.push(classify_row(row, &r, &header, lab.not_detected_style)?);
+                rows.push(classify_row(
+                    row,
+                    &r,
+                    &header,
+                    lab.not_detected_style,
+                    &mut ld_factors,
+                )?);
             }
         }
         Ok::<(), EvalError>(())
@@ -195,13 +204,14 @@ fn classify_row(
     r: &resolve::Resolved<'_>,
     header: &Header,
     nd_style: NotDetectedStyle,
+    ld_factors: &mut Vec<(u32, Option<f64>)>,
 ) -> Result<ReportRow, EvalError> {
     let sig = header.significant_figures;
     let state = classify::state(r.value, r.mdl, r.loq, r.over_range);
     let rounded = round_sig(r.value, sig);
     let (mdl, loq) = (round_sig(r.mdl, sig), round_sig(r.loq, sig));
     let mut verdict = verdict_of(&row, r, header, state, (rounded, mdl, loq))?;
-    let (ld, beta_at_limit, beta) = power_at_limit(r, state, header);
+    let (ld, beta_at_limit, beta) = power_at_limit(r, state, header, ld_factors);
     let p = header.detection_power;
     let weak_pass = verdict == Some(classify::Verdict::Pass) && beta.is_some_and(|b| b > p.beta);
     let mut qualifiers = Vec::new();
@@ -365,7 +375,12 @@ type Power = (
     Option<f64>,
 );
 
-fn power_at_limit(r: &resolve::Resolved<'_>, state: State, header: &Header) -> Power {
+fn power_at_limit(
+    r: &resolve::Resolved<'_>,
+    state: State,
+    header: &Header,
+    ld_factors: &mut Vec<(u32, Option<f64>)>,
+) -> Power {
     let (Some((sd, n)), Some(spec)) = (r.spike_sd, &r.spec) else {
         return (None, None, None);
     };
@@ -377,11 +392,18 @@ fn power_at_limit(r: &resolve::Resolved<'_>, state: State, header: &Header) -> P
         return (None, None, None);
     };
     let p = header.detection_power;
-    let ld = crate::power::detection_limit(sd, n, p.alpha, p.beta)
-        .and_then(crate::numeric::decimal_of)
+    let factor = match ld_factors.iter().find(|(k, _)| *k == n) {
+        Some((_, f)) => *f,
+        None => {
+            let f = crate::power::ld_factor(n, p.alpha, p.beta);
+            ld_factors.push((n, f));
+            f
+        }
+    };
+    let ld = factor
+        .filter(|_| sd > 0.0)
+        .and_then(|k| crate::numeric::decimal_of(k * sd))
         .map(|d| round_sig(d, header.significant_figures));
-    // Four places keep a weak pass visible without claiming more precision
-    // than a replicate study has.
     let beta = crate::power::beta_at_limit(mdl, limit, sd, n);
     // Four decimal places: "0.0000" is below 0.00005 (a decimal cannot hold
     // the far tail, and no study supports more digits).
