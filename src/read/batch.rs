@@ -1,6 +1,6 @@
 //! A client batch: batch.toml (who, what, when) and its results CSV.
 
-use super::csvtable::{Col, opt, read_file, read_rows, req};
+use super::csvtable::{Col, opt, read_file, read_rows_from, req};
 use super::error::{Loc, ReadError};
 use super::vocab::DecisionRule;
 use super::vocab::Kind;
@@ -176,18 +176,162 @@ pub fn parse_results(file: &str, bytes: &[u8]) -> Result<Vec<ResultRow>, ReadErr
 
 /// Hands each checked result to `each` in file order, so a large batch need
 /// not be held in memory twice.
-// Long (about 110 lines) on purpose: the per-row hot loop of a million-row
-// batch; its reused buffers and interned names live across rows.
 pub fn each_result<E: From<ReadError>>(
     file: &str,
     bytes: &[u8],
+    each: impl FnMut(ResultRow) -> Result<(), E>,
+) -> Result<(), E> {
+    each_result_in(file, Source::Bytes(bytes), Pass::Check, each)
+}
+
+/// What one pass over a results file is for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Pass {
+    /// Every row checked, repeated keys found.
+    Check,
+    /// The QC rows only, as far as the file reads cleanly (a later `Check`
+    /// pass reports the first error in file order); samples are skipped
+    /// after their kind.
+    Qc,
+    /// Every row again, once a `Check` pass has passed: no repeat search.
+    Again,
+}
+
+/// Where a pass reads the results from.
+#[derive(Debug, Clone, Copy)]
+pub enum Source<'a> {
+    Bytes(&'a [u8]),
+    File(&'a OnDisk),
+}
+
+/// A results file read from disk on every pass, so memory stays flat in its
+/// size; its length and modification time are checked on each opening.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OnDisk {
+    pub path: PathBuf,
+    len: u64,
+    modified: Option<std::time::SystemTime>,
+}
+
+impl OnDisk {
+    pub fn new(path: &Path) -> Result<OnDisk, ReadError> {
+        let m = std::fs::metadata(path).map_err(|source| ReadError::Io {
+            file: path.display().to_string(),
+            source,
+        })?;
+        Ok(OnDisk {
+            path: path.to_path_buf(),
+            len: m.len(),
+            modified: m.modified().ok(),
+        })
+    }
+}
+
+impl Source<'_> {
+    pub fn len(&self) -> u64 {
+        match self {
+            Source::Bytes(b) => b.len() as u64,
+            Source::File(f) => f.len,
+        }
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    fn open(&self, file: &str) -> Result<Box<dyn std::io::Read + '_>, ReadError> {
+        match self {
+            Source::Bytes(b) => Ok(Box::new(*b)),
+            Source::File(f) => {
+                if OnDisk::new(&f.path)? != **f {
+                    return Err(ReadError::field(
+                        Loc::file(file),
+                        "changed while limen was reading it",
+                        "let the export finish, then run again",
+                    ));
+                }
+                let handle = std::fs::File::open(&f.path).map_err(|source| ReadError::Io {
+                    file: file.to_string(),
+                    source,
+                })?;
+                Ok(Box::new(handle))
+            }
+        }
+    }
+}
+
+/// The key of a result's repeat check: lab id, analyte (lower case) and
+/// kind, joined by a separator that cannot occur in a trimmed cell.
+fn repeat_key(key: &mut String, lab_id: &str, analyte: &str, kind: Kind) {
+    key.clear();
+    key.push_str(lab_id);
+    key.push('\u{1f}');
+    crate::fasthash::push_lower(key, analyte);
+    key.push('\u{1f}');
+    key.push_str(kind.name());
+}
+
+/// Confirms the repeat search's candidates up to `limit` by a key-only scan.
+fn repeated(
+    file: &str,
+    source: Source<'_>,
+    repeats: &super::repeats::Repeats,
+    limit: u64,
+) -> Result<Option<ReadError>, ReadError> {
+    if repeats.candidates.is_empty() {
+        return Ok(None);
+    }
+    let reader = source.open(file)?;
+    let mut last = (0u64, String::new(), String::new(), Kind::Sample);
+    let found = super::repeats::confirm(&repeats.candidates, limit, |f| {
+        let mut key = String::new();
+        let _ = read_rows_from(file, reader, COLUMNS, |r| {
+            let (Some(kind), lab_id, analyte) =
+                (Kind::parse(r.get(KIND)), r.get(LAB_ID), r.get(ANALYTE))
+            else {
+                return Err(ReadError::Empty {
+                    file: String::new(),
+                    expected: Vec::new(),
+                });
+            };
+            repeat_key(&mut key, lab_id, analyte, kind);
+            last = (r.line, lab_id.to_string(), analyte.to_string(), kind);
+            if f(r.line, &key) {
+                Ok(())
+            } else {
+                // Stops the scan; not an error of the file.
+                Err(ReadError::Empty {
+                    file: String::new(),
+                    expected: Vec::new(),
+                })
+            }
+        });
+    });
+    Ok(found.map(|(line, first)| {
+        let (_, lab_id, analyte, kind) = &last;
+        ReadError::field(
+            Loc::new(file, line, "lab_id"),
+            format!(
+                "{lab_id} / {analyte} / {} appears again (first on line {first})",
+                kind.name()
+            ),
+            "each lab id has one result per analyte and kind; remove the repeat or give a re-run its own lab id",
+        )
+    }))
+}
+
+/// One pass over the results from `source`: each row (of the kinds `pass`
+/// wants) checked and handed to `each` in file order.
+// Long (about 130 lines) on purpose: the per-row hot loop of a million-row
+// batch; its reused buffers and interned names live across rows.
+pub fn each_result_in<E: From<ReadError>>(
+    file: &str,
+    source: Source<'_>,
+    pass: Pass,
     mut each: impl FnMut(ResultRow) -> Result<(), E>,
 ) -> Result<(), E> {
     let shared: Arc<str> = Arc::from(file);
-    // Key: lab id, analyte (lower case) and kind, joined by a separator that
-    // cannot occur in a trimmed cell.
-    let mut seen: HashMap<String, u64, crate::fasthash::Build> =
-        HashMap::with_capacity_and_hasher(bytes.len() / 96, Default::default());
+    let mut repeats = (pass == Pass::Check).then(|| super::repeats::Repeats::for_len(source.len()));
     // Analytes, matrices, methods and specs repeat on every row: share them.
     let mut names: HashMap<String, Arc<str>, crate::fasthash::Build> = HashMap::default();
     let mut intern = move |s: &str| -> Arc<str> {
@@ -199,8 +343,11 @@ pub fn each_result<E: From<ReadError>>(
         a
     };
     let mut key = String::new();
-    read_rows(file, bytes, COLUMNS, |r| {
-        let mut parse = || -> Result<ResultRow, ReadError> {
+    // The line of the first error, parse or evaluation, for the repeat search.
+    let mut failed_at: Option<u64> = None;
+    let reader = source.open(file)?;
+    let outcome = read_rows_from(file, reader, COLUMNS, |r| {
+        let mut parse = || -> Result<Option<ResultRow>, ReadError> {
             let kind_text = r.required(KIND)?;
             let kind = Kind::parse(kind_text).ok_or_else(|| {
                 ReadError::field(
@@ -209,25 +356,15 @@ pub fn each_result<E: From<ReadError>>(
                     format!("kinds: {}", Kind::ALL.map(|k| k.name()).join(", ")),
                 )
             })?;
+            if pass == Pass::Qc && kind == Kind::Sample {
+                return Ok(None);
+            }
             let lab_id = r.required(LAB_ID)?.to_string();
             let analyte = intern(r.required(ANALYTE)?);
-            key.clear();
-            key.push_str(&lab_id);
-            key.push('\u{1f}');
-            crate::fasthash::push_lower(&mut key, &analyte);
-            key.push('\u{1f}');
-            key.push_str(kind.name());
-            if let Some(first) = seen.get(key.as_str()) {
-                return Err(ReadError::field(
-                    r.loc(LAB_ID),
-                    format!(
-                        "{lab_id} / {analyte} / {} appears again (first on line {first})",
-                        kind.name()
-                    ),
-                    "each lab id has one result per analyte and kind; remove the repeat or give a re-run its own lab id",
-                ));
+            if let Some(repeats) = &mut repeats {
+                repeat_key(&mut key, &lab_id, &analyte, kind);
+                repeats.note(&key, r.line);
             }
-            seen.insert(key.clone(), r.line);
             let reading_unit = r.unit(READING_UNIT)?;
             let dilution = r.opt_positive(DILUTION)?.unwrap_or(Decimal::ONE);
             let mass_g = r.opt_positive(MASS)?;
@@ -284,11 +421,65 @@ pub fn each_result<E: From<ReadError>>(
                 spike_added: r.opt_decimal(SPIKE)?,
                 parent_id: non_empty(r.get(PARENT)),
             };
-            Ok(row)
+            Ok(Some(row))
         };
-        let row = parse()?;
-        each(row)
-    })
+        match parse() {
+            Ok(Some(row)) => each(row).map_err(|e| {
+                failed_at = Some(r.line);
+                Halt::Each(e)
+            }),
+            Ok(None) => Ok(()),
+            Err(_) if pass == Pass::Qc => Err(Halt::Quiet),
+            Err(e) => {
+                failed_at = Some(r.line);
+                Err(Halt::Read(e))
+            }
+        }
+    });
+    // A repeat before (or on) the first failing row is the error to report,
+    // as the file is read in order.
+    let first_repeat = |limit: u64| -> Result<Option<ReadError>, ReadError> {
+        match &repeats {
+            Some(r) => repeated(file, source, r, limit),
+            None => Ok(None),
+        }
+    };
+    match outcome {
+        Ok(()) => match first_repeat(u64::MAX)? {
+            Some(dup) => Err(dup.into()),
+            None => Ok(()),
+        },
+        Err(Halt::Quiet) => Ok(()),
+        Err(Halt::Read(_)) if pass == Pass::Qc => Ok(()),
+        Err(Halt::Read(e)) => {
+            let limit = failed_at.or(match &e {
+                ReadError::Csv { line, .. } => Some(*line),
+                _ => None,
+            });
+            match limit.map(first_repeat).transpose()?.flatten() {
+                Some(dup) => Err(dup.into()),
+                None => Err(e.into()),
+            }
+        }
+        Err(Halt::Each(e)) => match failed_at.map(first_repeat).transpose()?.flatten() {
+            Some(dup) => Err(dup.into()),
+            None => Err(e),
+        },
+    }
+}
+
+/// Why a pass stopped early.
+enum Halt<E> {
+    Read(ReadError),
+    Each(E),
+    /// The QC pass met a row it could not read: the checking pass reports it.
+    Quiet,
+}
+
+impl<E> From<ReadError> for Halt<E> {
+    fn from(e: ReadError) -> Self {
+        Halt::Read(e)
+    }
 }
 
 /// A batch folder as read: the manifest, its files' bytes and the rows.
@@ -444,6 +635,30 @@ mod tests {
         // The same lab id as a duplicate QC row is a different result.
         rows("S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\nS1,duplicate,Pb,paint,6010D,6,ug/L,1,0.1,50,2026-11-13\n")
             .unwrap();
+    }
+
+    // The repeat search is confirmed after the row loop; the error reported
+    // must still be the first in file order.
+    #[test]
+    fn the_first_problem_in_file_order_is_reported() {
+        let ok = "S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\n";
+        let bad_date = "S2,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-13-13\n";
+        let err = |body: String| rows(&body).unwrap_err().to_string();
+        // A repeat on line 3, a bad date on line 4: the repeat.
+        let e = err(format!("{ok}{ok}{bad_date}"));
+        assert!(e.starts_with("r.csv:3: field `lab_id`"), "{e}");
+        // A bad date on line 2, a repeat on line 4: the date.
+        let e = err(format!("{bad_date}{ok}{ok}"));
+        assert!(e.starts_with("r.csv:2: field `analyzed_on`"), "{e}");
+        // A repeat whose own unit is also wrong: the repeat, as it is
+        // checked first on the row.
+        let e = err(format!(
+            "{ok}S1,sample,Pb,paint,6010D,5,furlongs,1,0.1,50,2026-11-13\n"
+        ));
+        assert!(e.starts_with("r.csv:3: field `lab_id`"), "{e}");
+        // A ragged line after a repeat: the repeat.
+        let e = err(format!("{ok}{ok}S3,sample\n"));
+        assert!(e.starts_with("r.csv:3: field `lab_id`"), "{e}");
     }
 
     #[test]

@@ -139,48 +139,173 @@ fn norm_header(h: &str) -> String {
 
 /// Reads `bytes` as the CSV file `file` with columns `cols`, calling `each`
 /// for every data row in file order.
-// Long (about 110 lines) on purpose: header checks and the row loop share
-// the column map and the reused record; this is the hot path of every CSV.
 pub fn read_rows<E: From<ReadError>>(
     file: &str,
     bytes: &[u8],
     cols: &[Col],
+    each: impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
+    read_rows_from(file, bytes, cols, each)
+}
+
+/// The byte source under the CSV reader, noting where each CR and LF falls,
+/// so lines are counted from byte offsets without holding the file (the csv
+/// crate's own line count drifts on CRLF files).
+struct Tracked<R> {
+    inner: R,
+    /// Bytes handed on so far (after any BOM).
+    pos: u64,
+    /// CR and LF offsets not yet passed by a record start.
+    ends: std::collections::VecDeque<(u64, u8)>,
+    /// Whether anything but whitespace has been read.
+    text: bool,
+    /// A BOM at the very start is dropped, as if it were not there.
+    at_start: bool,
+}
+
+impl<R: std::io::Read> std::io::Read for Tracked<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let mut n = self.inner.read(buf)?;
+        if self.at_start {
+            // Fill at least three bytes (or reach the end) to see a BOM.
+            while n < 3.min(buf.len()) {
+                let more = self.inner.read(&mut buf[n..])?;
+                if more == 0 {
+                    break;
+                }
+                n += more;
+            }
+            self.at_start = false;
+            if buf[..n].starts_with(b"\xEF\xBB\xBF") {
+                buf.copy_within(3..n, 0);
+                n -= 3;
+            }
+        }
+        let chunk = &buf[..n];
+        for i in memchr::memchr2_iter(b'\r', b'\n', chunk) {
+            self.ends.push_back((self.pos + i as u64, chunk[i]));
+        }
+        if !self.text {
+            self.text = chunk.iter().any(|b| !b.is_ascii_whitespace());
+        }
+        self.pos += n as u64;
+        Ok(n)
+    }
+}
+
+/// Line counting over the CR/LF offsets of `Tracked`.
+struct Lines {
+    /// The line of the last record start.
+    line: u64,
+}
+
+impl Lines {
+    /// Moves to the record starting at `start` and returns its line. A start
+    /// on a CR or LF (where the csv crate reports a CRLF file's records)
+    /// moves past it.
+    fn advance(&mut self, ends: &mut std::collections::VecDeque<(u64, u8)>, start: u64) -> u64 {
+        let mut s = start;
+        while let Some(&(p, b)) = ends.front() {
+            if p <= s {
+                if p == s {
+                    s += 1;
+                }
+                if b == b'\n' {
+                    self.line += 1;
+                }
+                ends.pop_front();
+            } else {
+                break;
+            }
+        }
+        self.line
+    }
+
+    /// The line of an error at `byte`, without moving.
+    fn peek(&self, ends: &std::collections::VecDeque<(u64, u8)>, byte: u64) -> u64 {
+        let mut s = byte;
+        let mut line = self.line;
+        for &(p, b) in ends {
+            if p > s {
+                break;
+            }
+            if p == s {
+                s += 1;
+            }
+            if b == b'\n' {
+                line += 1;
+            }
+        }
+        line
+    }
+}
+
+/// Reads the CSV file `file` from `source` with columns `cols`, calling
+/// `each` for every data row in file order. Memory stays flat in the file's
+/// length: only the current record is held.
+// Long (about 120 lines) on purpose: header checks and the row loop share
+// the column map and the reused record; this is the hot path of every CSV.
+pub fn read_rows_from<E: From<ReadError>>(
+    file: &str,
+    source: impl std::io::Read,
+    cols: &[Col],
     mut each: impl FnMut(&Row<'_>) -> Result<(), E>,
 ) -> Result<(), E> {
-    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     let names = || cols.iter().map(|c| c.name.to_string()).collect::<Vec<_>>();
-    if bytes.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(ReadError::Empty {
-            file: file.to_string(),
-            expected: names(),
-        }
-        .into());
-    }
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(false)
-        .from_reader(bytes);
-    // The csv crate's own line count drifts on CRLF files, so lines are
-    // counted from byte offsets.
-    let line_of = |byte: u64| -> u64 {
-        let mut end = (byte as usize).min(bytes.len());
-        while end < bytes.len() && matches!(bytes[end], b'\r' | b'\n') {
-            end += 1;
+        .buffer_capacity(1 << 16)
+        .from_reader(Tracked {
+            inner: source,
+            pos: 0,
+            ends: Default::default(),
+            text: false,
+            at_start: true,
+        });
+    let mut lines = Lines { line: 1 };
+    let csv_err = |e: csv::Error, lines: &Lines, ends: &std::collections::VecDeque<(u64, u8)>| {
+        if let csv::ErrorKind::Io(source) = e.kind() {
+            return ReadError::Io {
+                file: file.to_string(),
+                source: std::io::Error::new(source.kind(), source.to_string()),
+            };
         }
-        bytes[..end].iter().filter(|b| **b == b'\n').count() as u64 + 1
+        ReadError::Csv {
+            file: file.to_string(),
+            line: e
+                .position()
+                .map(|p| lines.peek(ends, p.byte()))
+                .unwrap_or(1),
+            message: match e.kind() {
+                csv::ErrorKind::Utf8 { .. } => "not valid UTF-8 text".into(),
+                csv::ErrorKind::UnequalLengths {
+                    expected_len, len, ..
+                } => format!("{len} cells where the header has {expected_len}"),
+                _ => e.to_string(),
+            },
+        }
     };
-    let csv_err = |e: csv::Error| ReadError::Csv {
+    let empty = || ReadError::Empty {
         file: file.to_string(),
-        line: e.position().map(|p| line_of(p.byte())).unwrap_or(1),
-        message: match e.kind() {
-            csv::ErrorKind::Utf8 { .. } => "not valid UTF-8 text".into(),
-            csv::ErrorKind::UnequalLengths {
-                expected_len, len, ..
-            } => format!("{len} cells where the header has {expected_len}"),
-            _ => e.to_string(),
-        },
+        expected: names(),
     };
-    let header = reader.headers().map_err(csv_err)?.clone();
+    let header = match reader.headers() {
+        Ok(h) => h.clone(),
+        Err(e) => {
+            let r = reader.get_ref();
+            return Err(csv_err(e, &lines, &r.ends).into());
+        }
+    };
+    if header.iter().all(|h| h.trim().is_empty()) {
+        // A file of whitespace only is empty, not a file of blank columns:
+        // read on to tell.
+        let mut record = csv::ByteRecord::new();
+        while let Ok(true) = reader.read_byte_record(&mut record) {}
+        if !reader.get_ref().text {
+            return Err(empty().into());
+        }
+    }
     let mut map: Vec<Option<usize>> = vec![None; cols.len()];
     let mut unknown = Vec::new();
     for (i, h) in header.iter().enumerate() {
@@ -221,22 +346,17 @@ pub fn read_rows<E: From<ReadError>>(
         .into());
     }
     let mut record = csv::StringRecord::new();
-    let (mut seen_byte, mut line) = (0usize, 1u64);
-    while reader.read_record(&mut record).map_err(csv_err)? {
-        let start = record
-            .position()
-            .map(|p| p.byte() as usize)
-            .unwrap_or(seen_byte);
-        let mut start = start.clamp(seen_byte, bytes.len());
-        // On CRLF files the reported start can sit on the previous line's end.
-        while start < bytes.len() && matches!(bytes[start], b'\r' | b'\n') {
-            start += 1;
+    loop {
+        match reader.read_record(&mut record) {
+            Ok(true) => {}
+            Ok(false) => break,
+            Err(e) => {
+                let r = reader.get_ref();
+                return Err(csv_err(e, &lines, &r.ends).into());
+            }
         }
-        line += bytes[seen_byte..start]
-            .iter()
-            .filter(|b| **b == b'\n')
-            .count() as u64;
-        seen_byte = start;
+        let start = record.position().map(|p| p.byte()).unwrap_or(0);
+        let line = lines.advance(&mut reader.get_mut().ends, start);
         if record.iter().all(|c| c.trim().is_empty()) {
             continue;
         }

@@ -7,6 +7,7 @@ pub mod error;
 pub mod lab;
 pub mod qc_config;
 pub mod register;
+pub mod repeats;
 pub mod specs;
 mod toml_util;
 pub mod vocab;

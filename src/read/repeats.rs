@@ -1,0 +1,132 @@
+//! Finding a repeated result key (lab id, analyte, kind) in flat memory.
+//!
+//! Holding every key of a million-row file costs tens of megabytes; a Bloom
+//! filter of fixed size answers "certainly new" for almost every row, and
+//! the few "perhaps seen" keys are confirmed by a second, key-only scan of
+//! the file, so the answer (and the error, with the first line) is exact.
+
+use std::collections::HashMap;
+
+/// At least 2^26 bits (8 MB, touched only as keys arrive): about one false
+/// "perhaps seen" in a million keys for files up to a few million rows.
+const MIN_BITS: u64 = 1 << 26;
+const PROBES: u64 = 6;
+
+pub struct Repeats {
+    bits: Vec<u64>,
+    mask: u64,
+    /// Keys the filter could not clear, with the line where each was met.
+    pub candidates: HashMap<String, u64, crate::fasthash::Build>,
+}
+
+fn hashes(key: &[u8]) -> (u64, u64) {
+    use std::hash::Hasher;
+    let mut f = crate::fasthash::Fnv::default();
+    f.write(key);
+    let h1 = f.finish();
+    // splitmix64 of the first hash: a second probe stride.
+    let mut z = h1.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    (h1, (z ^ (z >> 31)) | 1)
+}
+
+impl Repeats {
+    /// A filter sized for a file of `len` bytes.
+    pub fn for_len(len: u64) -> Repeats {
+        // About 24 bits per row of at least 40 bytes.
+        let bits = (len / 40 * 24).next_power_of_two().max(MIN_BITS);
+        Repeats {
+            bits: vec![0; (bits / 64) as usize],
+            mask: bits - 1,
+            candidates: HashMap::default(),
+        }
+    }
+
+    /// Notes `key` (met on `line`); false when it is certainly new.
+    pub fn note(&mut self, key: &str, line: u64) -> bool {
+        let (h1, h2) = hashes(key.as_bytes());
+        let mut all = true;
+        for i in 0..PROBES {
+            let bit = h1.wrapping_add(i.wrapping_mul(h2)) & self.mask;
+            let (word, b) = ((bit / 64) as usize, 1u64 << (bit % 64));
+            all &= self.bits[word] & b != 0;
+            self.bits[word] |= b;
+        }
+        if all {
+            self.candidates.entry(key.to_string()).or_insert(line);
+        }
+        all
+    }
+}
+
+/// Confirms the candidates against the file's keys in order: the first key
+/// met twice at or before `limit` gives (its line, the first line).
+pub fn confirm(
+    candidates: &HashMap<String, u64, crate::fasthash::Build>,
+    limit: u64,
+    keys: impl FnOnce(&mut dyn FnMut(u64, &str) -> bool),
+) -> Option<(u64, u64)> {
+    let mut first: HashMap<&str, u64, crate::fasthash::Build> = HashMap::default();
+    let mut found = None;
+    keys(&mut |line, key| {
+        if line > limit {
+            return false;
+        }
+        if let Some((k, _)) = candidates.get_key_value(key) {
+            match first.get(k.as_str()) {
+                Some(&f) => {
+                    found = Some((line, f));
+                    return false;
+                }
+                None => {
+                    first.insert(k.as_str(), line);
+                }
+            }
+        }
+        true
+    });
+    found
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_repeat_is_always_a_candidate_and_new_keys_rarely_are() {
+        let mut r = Repeats::for_len(0);
+        let mut false_alarms = 0;
+        for i in 0..200_000 {
+            if r.note(&format!("S{i}\u{1f}pb\u{1f}sample"), i) {
+                false_alarms += 1;
+            }
+        }
+        assert!(r.note("S17\u{1f}pb\u{1f}sample", 300_000));
+        // Expected false alarms at 200,000 keys in 2^26 bits, 6 probes:
+        // (1 − e^(−6·200000/2^26))^6 ≈ 3e-11 per key, so none.
+        assert_eq!(false_alarms, 0);
+    }
+
+    #[test]
+    fn confirm_finds_the_first_real_repeat_and_ignores_false_alarms() {
+        let mut c: HashMap<String, u64, crate::fasthash::Build> = HashMap::default();
+        c.insert("a".into(), 5);
+        c.insert("b".into(), 9);
+        let file = [(2, "a"), (3, "x"), (4, "b"), (5, "y"), (7, "b"), (9, "a")];
+        let scan = |f: &mut dyn FnMut(u64, &str) -> bool| {
+            for (line, key) in file {
+                if !f(line, key) {
+                    break;
+                }
+            }
+        };
+        assert_eq!(confirm(&c, u64::MAX, scan), Some((7, 4)));
+        // Stopping before the repeat finds none.
+        assert_eq!(confirm(&c, 6, scan), None);
+        // A false alarm ("a" met once before line 5) is not a repeat.
+        let mut only_a: HashMap<String, u64, crate::fasthash::Build> = HashMap::default();
+        only_a.insert("a".into(), 5);
+        assert_eq!(confirm(&only_a, 8, scan), None);
+    }
+}
