@@ -81,10 +81,6 @@ fn same(a: &str, b: &str) -> bool {
         || (!(a.is_ascii() && b.is_ascii()) && a.to_lowercase() == b.to_lowercase())
 }
 
-fn in_group(r: &ReportRow, analyte: &str, method: &str) -> bool {
-    same(&r.analyte, analyte) && same(&r.method, method)
-}
-
 /// A QC row's value and limits in its own unit.
 struct Measured {
     value: Decimal,
@@ -238,49 +234,363 @@ struct ParentCheck<'a> {
     qualifier: &'static str,
 }
 
-fn on_parent(
-    c: ParentCheck<'_>,
-    parent: usize,
-    parent_id: &str,
-    qualify: &mut Vec<(usize, &'static str)>,
-) -> QcCheck {
-    if !c.pass {
-        qualify.push((parent, c.qualifier));
-    }
-    QcCheck {
-        check: c.check,
-        analyte: c.analyte.clone(),
-        method: c.method.clone(),
-        rows: c.rows,
-        value: c.value,
-        window: c.window,
-        outcome: if c.pass { Outcome::Pass } else { Outcome::Fail },
-        note: if c.pass {
-            String::new()
-        } else {
-            format!("{}: {parent_id}", c.qualifier)
-        },
-        blocking: false,
-        affected: if c.pass { Vec::new() } else { vec![parent] },
-    }
-}
-
 pub struct QcResult {
     pub checks: Vec<QcCheck>,
     pub problems: Vec<Problem>,
 }
 
-/// What every check family reads: the workspace, the QC rows and the
-/// classified client results (not yet qualified).
+/// A spike's or duplicate's parent sample, as the QC rules need it.
+#[derive(Debug, Clone)]
+struct Parent {
+    index: usize,
+    lab_id: String,
+    analyte: Arc<str>,
+    method: Arc<str>,
+    unit: Unit,
+    value: Decimal,
+    loq: Decimal,
+    line: u64,
+}
+
+/// The samples of one analyte and method (names compared without case).
+#[derive(Debug, Clone)]
+struct Group {
+    analyte: Arc<str>,
+    method: Arc<str>,
+    lab_id: String,
+    count: usize,
+}
+
+/// What one method blank's samples (its analyte, method and matrix) add up to.
+#[derive(Debug, Clone, Default)]
+struct BlankGroup {
+    /// The units met, in first-met order.
+    units: Vec<Unit>,
+    lowest_limit: Option<Decimal>,
+    lowest_result: Option<Decimal>,
+}
+
+/// A method blank's analyte, method and matrix, and what its samples add up to.
+type BlankKey = (Arc<str>, Arc<str>, Arc<str>, BlankGroup);
+
+/// What the QC rules need of the client results, gathered in one pass over
+/// them, so the rules never hold the results themselves: group counts, the
+/// aggregates of each method blank's samples, and the parents that spikes
+/// and duplicates name.
+pub struct Gather {
+    groups: Vec<Group>,
+    /// One per method-blank QC row, in QC row order.
+    blanks: Vec<BlankKey>,
+    /// Parents wanted, by lab id: (lower-case analyte, the last sample met).
+    parents: HashMap<String, Vec<(String, Option<Parent>)>>,
+    count: usize,
+}
+
+impl Gather {
+    /// Ready for the samples of a batch with these QC rows.
+    pub fn new(qc_rows: &[ResultRow]) -> Gather {
+        let mut parents: HashMap<String, Vec<(String, Option<Parent>)>> = HashMap::new();
+        for q in qc_rows {
+            if let (Kind::MatrixSpike | Kind::MatrixSpikeDup | Kind::Duplicate, Some(pid)) =
+                (q.kind, &q.parent_id)
+            {
+                let wanted = parents.entry(pid.clone()).or_default();
+                let a = lower(&q.analyte);
+                if !wanted.iter().any(|(x, _)| *x == a) {
+                    wanted.push((a, None));
+                }
+            }
+        }
+        Gather {
+            groups: Vec::new(),
+            blanks: qc_rows
+                .iter()
+                .filter(|q| q.kind == Kind::MethodBlank)
+                .map(|q| {
+                    (
+                        q.analyte.clone(),
+                        q.method.clone(),
+                        q.matrix.clone(),
+                        BlankGroup::default(),
+                    )
+                })
+                .collect(),
+            parents,
+            count: 0,
+        }
+    }
+
+    /// Takes in the next classified client result (not yet qualified).
+    pub fn sample(&mut self, r: &ReportRow) {
+        let index = self.count;
+        self.count += 1;
+        match self
+            .groups
+            .iter_mut()
+            .find(|g| same_name(&g.analyte, &r.analyte) && same_name(&g.method, &r.method))
+        {
+            Some(g) => g.count += 1,
+            None => self.groups.push(Group {
+                analyte: r.analyte.clone(),
+                method: r.method.clone(),
+                lab_id: r.lab_id.clone(),
+                count: 1,
+            }),
+        }
+        for (analyte, method, matrix, b) in &mut self.blanks {
+            if !(same_name(analyte, &r.analyte)
+                && same_name(method, &r.method)
+                && same_name(matrix, &r.matrix))
+            {
+                continue;
+            }
+            if !b.units.contains(&r.unit) {
+                b.units.push(r.unit);
+            }
+            if let Some(l) = r.spec_limit {
+                b.lowest_limit = Some(b.lowest_limit.map_or(l, |x| x.min(l)));
+            }
+            if matches!(r.state, State::DetectedBelowLoq | State::Quantified) {
+                let v = r.value_unrounded;
+                b.lowest_result = Some(b.lowest_result.map_or(v, |x| x.min(v)));
+            }
+        }
+        if let Some(wanted) = self.parents.get_mut(r.lab_id.as_str()) {
+            let a = lower(&r.analyte);
+            if let Some((_, slot)) = wanted.iter_mut().find(|(x, _)| *x == a) {
+                *slot = Some(Parent {
+                    index,
+                    lab_id: r.lab_id.clone(),
+                    analyte: r.analyte.clone(),
+                    method: r.method.clone(),
+                    unit: r.unit,
+                    value: r.value_unrounded,
+                    loq: r.loq_unrounded,
+                    line: r.line,
+                });
+            }
+        }
+    }
+
+    /// The number of client results taken in.
+    pub fn count(&self) -> usize {
+        self.count
+    }
+
+    fn group(&self, analyte: &str, method: &str) -> Option<&Group> {
+        self.groups
+            .iter()
+            .find(|g| same(&g.analyte, analyte) && same(&g.method, method))
+    }
+
+    fn parent(&self, lab_id: &str, analyte: &str) -> Option<&Parent> {
+        let a = lower(analyte);
+        self.parents
+            .get(lab_id)?
+            .iter()
+            .find(|(x, _)| *x == a)?
+            .1
+            .as_ref()
+    }
+}
+
+/// Interned names are usually the same allocation: skip the comparison then.
+fn same_name(a: &Arc<str>, b: &Arc<str>) -> bool {
+    Arc::ptr_eq(a, b) || same(a, b)
+}
+
+/// What a failed check does to the client results, applied to each as it
+/// is written.
+#[derive(Debug, Clone)]
+enum Rule {
+    /// A method blank: detected results below `ceiling` are qualified.
+    Blank {
+        check: usize,
+        analyte: Arc<str>,
+        method: Arc<str>,
+        matrix: Arc<str>,
+        ceiling: Decimal,
+        factor: Decimal,
+    },
+    /// Every result of the analyte and method is held (LCS, required QC).
+    Group {
+        check: usize,
+        analyte: Arc<str>,
+        method: Arc<str>,
+    },
+    /// One parent sample is qualified.
+    Parent {
+        check: usize,
+        index: usize,
+        qualifier: &'static str,
+    },
+    /// The results a failed calibration check brackets are held.
+    Bracket {
+        check: usize,
+        problem: usize,
+        analyte: Arc<str>,
+        method: Arc<str>,
+        after_pass: Option<(chrono::NaiveDate, u64)>,
+        before_pass: Option<(chrono::NaiveDate, u64)>,
+    },
+}
+
+/// The QC checks as judged, and the rules that qualify or hold results;
+/// `qualify` applies them row by row, `finish` words what they found.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    checks: Vec<QcCheck>,
+    problems: Vec<Problem>,
+    rules: Vec<Rule>,
+    /// Lab ids each rule met, for the notes that list them.
+    ids: Vec<Vec<String>>,
+}
+
+impl Plan {
+    /// Forgets what an earlier pass over the results found.
+    pub fn restart(&mut self) {
+        for c in &mut self.checks {
+            c.affected.clear();
+        }
+        for ids in &mut self.ids {
+            ids.clear();
+        }
+    }
+
+    /// Whether a check holds the batch (its problem is known before any
+    /// row is written; only its wording waits for the rows).
+    pub fn holds(&self) -> bool {
+        !self.problems.is_empty()
+    }
+
+    /// Whether any rule can touch a result (none when every check passed).
+    pub fn is_idle(&self) -> bool {
+        self.rules.is_empty()
+    }
+
+    /// Applies the rules to client result `index` (in file order).
+    pub fn qualify(&mut self, index: usize, r: &mut ReportRow) {
+        for (k, rule) in self.rules.iter().enumerate() {
+            let (check, qualifier) = match rule {
+                Rule::Blank {
+                    check,
+                    analyte,
+                    method,
+                    matrix,
+                    ceiling,
+                    ..
+                } => {
+                    let hit = same_name(analyte, &r.analyte)
+                        && same_name(method, &r.method)
+                        && same_name(matrix, &r.matrix)
+                        && matches!(r.state, State::DetectedBelowLoq | State::Quantified)
+                        && r.value_unrounded < *ceiling;
+                    if !hit {
+                        continue;
+                    }
+                    (*check, Some(BLANK_AFFECTED))
+                }
+                Rule::Group {
+                    check,
+                    analyte,
+                    method,
+                } => {
+                    if !(same_name(analyte, &r.analyte) && same_name(method, &r.method)) {
+                        continue;
+                    }
+                    (*check, None)
+                }
+                Rule::Parent {
+                    check,
+                    index: p,
+                    qualifier,
+                } => {
+                    if *p != index {
+                        continue;
+                    }
+                    (*check, Some(*qualifier))
+                }
+                Rule::Bracket {
+                    check,
+                    analyte,
+                    method,
+                    after_pass,
+                    before_pass,
+                    ..
+                } => {
+                    let t = (r.analyzed_on, r.line);
+                    let hit = same_name(analyte, &r.analyte)
+                        && same_name(method, &r.method)
+                        && after_pass.is_none_or(|x| t > x)
+                        && before_pass.is_none_or(|x| t < x);
+                    if !hit {
+                        continue;
+                    }
+                    (*check, None)
+                }
+            };
+            self.checks[check].affected.push(index);
+            if matches!(rule, Rule::Blank { .. } | Rule::Bracket { .. }) {
+                self.ids[k].push(r.lab_id.clone());
+            }
+            if let Some(q) = qualifier {
+                if !r.qualifiers.iter().any(|x| x == q) {
+                    r.qualifiers.push(q.to_string());
+                }
+            }
+        }
+    }
+
+    /// The checks and problems, with the notes that name the results the
+    /// last pass met.
+    pub fn finish(self) -> QcResult {
+        let Plan {
+            mut checks,
+            mut problems,
+            rules,
+            ids,
+        } = self;
+        for (rule, ids) in rules.iter().zip(ids) {
+            match rule {
+                Rule::Blank { check, factor, .. } => {
+                    checks[*check].note = if ids.is_empty() {
+                        format!("no result below {} × the blank", plain(*factor))
+                    } else {
+                        format!("{BLANK_AFFECTED}: {}", ids.join(", "))
+                    };
+                }
+                Rule::Bracket { check, problem, .. } => {
+                    let joined = ids.join(", ");
+                    let c = &mut checks[*check];
+                    problems[*problem].message = format!(
+                        "{} {} is outside {}; results run since the last passing check are held: {}",
+                        c.check,
+                        c.value,
+                        c.window,
+                        if ids.is_empty() { "none" } else { &joined }
+                    );
+                    c.blocking = !ids.is_empty();
+                    c.note = if ids.is_empty() {
+                        "no results bracketed".into()
+                    } else {
+                        format!("held: {joined}")
+                    };
+                }
+                Rule::Group { .. } | Rule::Parent { .. } => {}
+            }
+        }
+        QcResult { checks, problems }
+    }
+}
+
+/// What every check family reads: the workspace, the QC rows and what was
+/// gathered from the classified client results (not yet qualified).
 struct Batch<'a> {
     ws: &'a Workspace,
     config: &'a QcConfig,
     results_file: &'a str,
     qc_rows: &'a [ResultRow],
-    rows: &'a [ReportRow],
-    /// Sample index by (lab id, lower-case analyte); built only when a spike
-    /// or duplicate needs its parent.
-    by_id: HashMap<(&'a str, String), usize>,
+    gathered: &'a Gather,
     /// Samples that could not be evaluated (no limits or spec in force):
     /// their own problem already holds the batch.
     blocked: &'a [Problem],
@@ -290,7 +600,7 @@ impl Batch<'_> {
     /// The parent sample of a spike or duplicate; None when the parent is
     /// itself blocked, so the check cannot be made (and need not be: the
     /// parent's problem holds the batch).
-    fn parent_of(&self, q: &ResultRow) -> Result<Option<usize>, EvalError> {
+    fn parent_of(&self, q: &ResultRow) -> Result<Option<&Parent>, EvalError> {
         let Some(pid) = &q.parent_id else {
             return Err(EvalError::Read(ReadError::field(
                 q.loc("parent_id"),
@@ -301,8 +611,8 @@ impl Batch<'_> {
                 "give the lab id of the parent sample",
             )));
         };
-        if let Some(&i) = self.by_id.get(&(pid.as_str(), lower(&q.analyte))) {
-            return Ok(Some(i));
+        if let Some(p) = self.gathered.parent(pid, &q.analyte) {
+            return Ok(Some(p));
         }
         if self
             .blocked
@@ -319,12 +629,41 @@ impl Batch<'_> {
     }
 }
 
-/// What the check families find; qualifiers are applied once all have run.
+/// What the check families find; the rules apply as results are written.
 #[derive(Default)]
 struct Found {
     checks: Vec<QcCheck>,
     problems: Vec<Problem>,
-    qualify: Vec<(usize, &'static str)>,
+    rules: Vec<Rule>,
+}
+
+impl Found {
+    /// A check whose failure qualifies one parent sample.
+    fn on_parent(&mut self, c: ParentCheck<'_>, parent: &Parent) {
+        if !c.pass {
+            self.rules.push(Rule::Parent {
+                check: self.checks.len(),
+                index: parent.index,
+                qualifier: c.qualifier,
+            });
+        }
+        self.checks.push(QcCheck {
+            check: c.check,
+            analyte: c.analyte.clone(),
+            method: c.method.clone(),
+            rows: c.rows,
+            value: c.value,
+            window: c.window,
+            outcome: if c.pass { Outcome::Pass } else { Outcome::Fail },
+            note: if c.pass {
+                String::new()
+            } else {
+                format!("{}: {}", c.qualifier, parent.lab_id)
+            },
+            blocking: false,
+            affected: Vec::new(),
+        });
+    }
 }
 
 fn no_limits(q: &ResultRow) -> Problem {
@@ -344,36 +683,21 @@ fn no_limits(q: &ResultRow) -> Problem {
     }
 }
 
-/// Runs every check family over the batch and qualifies the client results.
+/// Runs every check family over the batch: the checks as judged, and the
+/// plan that qualifies the client results as they are written.
 pub fn evaluate(
     ws: &Workspace,
     results_file: &str,
     qc_rows: &[ResultRow],
-    rows: &mut [ReportRow],
+    gathered: &Gather,
     blocked: &[Problem],
-) -> Result<QcResult, EvalError> {
-    // Only spikes and duplicates look samples up by id.
-    let needs_parents = qc_rows.iter().any(|q| {
-        matches!(
-            q.kind,
-            Kind::MatrixSpike | Kind::MatrixSpikeDup | Kind::Duplicate
-        )
-    });
-    let by_id = if needs_parents {
-        rows.iter()
-            .enumerate()
-            .map(|(i, r)| ((r.lab_id.as_str(), lower(&r.analyte)), i))
-            .collect()
-    } else {
-        HashMap::new()
-    };
+) -> Result<Plan, EvalError> {
     let b = Batch {
         ws,
         config: &ws.lab.qc,
         results_file,
         qc_rows,
-        rows,
-        by_id,
+        gathered,
         blocked,
     };
     let mut out = Found::default();
@@ -384,18 +708,13 @@ pub fn evaluate(
     duplicates(&b, &mut out)?;
     calibration(&b, &mut out)?;
     required(&b, &mut out)?;
-    let Found {
-        checks,
-        problems,
-        qualify,
-    } = out;
-    for (i, q) in qualify {
-        let quals = &mut rows[i].qualifiers;
-        if !quals.iter().any(|x| x == q) {
-            quals.push(q.to_string());
-        }
-    }
-    Ok(QcResult { checks, problems })
+    let ids = vec![Vec::new(); out.rules.len()];
+    Ok(Plan {
+        checks: out.checks,
+        problems: out.problems,
+        rules: out.rules,
+        ids,
+    })
 }
 
 /// The method blank's threshold and its window text: the highest of the
@@ -426,46 +745,32 @@ fn blank_threshold(
 
 /// Method blanks: associated with samples of the same analyte, method and matrix.
 fn method_blanks(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
-    for q in b.qc_rows.iter().filter(|q| q.kind == Kind::MethodBlank) {
+    let blanks = b.qc_rows.iter().filter(|q| q.kind == Kind::MethodBlank);
+    for (q, (_, _, _, group)) in blanks.zip(&b.gathered.blanks) {
         let c = b.config.for_method(&q.method);
         let Some(m) = prepared(b.ws, q)? else {
             out.problems.push(no_limits(q));
             continue;
         };
-        let assoc: Vec<usize> = b
-            .rows
-            .iter()
-            .enumerate()
-            .filter(|(_, r)| in_group(r, &q.analyte, &q.method) && same(&r.matrix, &q.matrix))
-            .map(|(i, _)| i)
-            .collect();
-        if let Some(&i) = assoc.iter().find(|&&i| b.rows[i].unit != m.unit) {
-            return Err(unit_clash(q, m.unit, b.rows[i].unit));
+        if let Some(&u) = group.units.iter().find(|&&u| u != m.unit) {
+            return Err(unit_clash(q, m.unit, u));
         }
-        let lowest_limit = assoc.iter().filter_map(|&i| b.rows[i].spec_limit).min();
-        let lowest_result = assoc
-            .iter()
-            .filter(|&&i| matches!(b.rows[i].state, State::DetectedBelowLoq | State::Quantified))
-            .map(|&i| b.rows[i].value_unrounded)
-            .min();
-        let (threshold, window) =
-            blank_threshold(&m, lowest_limit, lowest_result, c).ok_or_else(|| overflow(q))?;
+        let (threshold, window) = blank_threshold(&m, group.lowest_limit, group.lowest_result, c)
+            .ok_or_else(|| overflow(q))?;
         let pass = m.value < threshold;
-        let mut affected = Vec::new();
         if !pass {
             let ceiling = m
                 .value
                 .checked_mul(c.blank_affects_below_factor)
                 .ok_or_else(|| overflow(q))?;
-            for &i in &assoc {
-                let r = &b.rows[i];
-                if matches!(r.state, State::DetectedBelowLoq | State::Quantified)
-                    && r.value_unrounded < ceiling
-                {
-                    affected.push(i);
-                    out.qualify.push((i, BLANK_AFFECTED));
-                }
-            }
+            out.rules.push(Rule::Blank {
+                check: out.checks.len(),
+                analyte: q.analyte.clone(),
+                method: q.method.clone(),
+                matrix: q.matrix.clone(),
+                ceiling,
+                factor: c.blank_affects_below_factor,
+            });
         }
         out.checks.push(QcCheck {
             check: "method blank",
@@ -475,25 +780,10 @@ fn method_blanks(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
             value: format!("{} {}", round_sig(m.value, 3), m.unit),
             window,
             outcome: if pass { Outcome::Pass } else { Outcome::Fail },
-            note: if pass {
-                String::new()
-            } else if affected.is_empty() {
-                format!(
-                    "no result below {} × the blank",
-                    plain(c.blank_affects_below_factor)
-                )
-            } else {
-                format!(
-                    "{BLANK_AFFECTED}: {}",
-                    affected
-                        .iter()
-                        .map(|&i| b.rows[i].lab_id.as_str())
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )
-            },
+            // A failed blank's note names the results it met (`Plan::finish`).
+            note: String::new(),
             blocking: false,
-            affected,
+            affected: Vec::new(),
         });
     }
 
@@ -515,31 +805,29 @@ fn lcs(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
             .and_then(|x| x.checked_div(spike))
             .ok_or_else(|| overflow(q))?;
         let pass = within(recovery, c.lcs_recovery_pct);
-        let affected: Vec<usize> = if pass {
-            Vec::new()
-        } else {
-            b.rows
-                .iter()
-                .enumerate()
-                .filter(|(_, r)| in_group(r, &q.analyte, &q.method))
-                .map(|(i, _)| i)
-                .collect()
-        };
         if !pass {
+            let held = b
+                .gathered
+                .group(&q.analyte, &q.method)
+                .map_or(0, |g| g.count);
             out.problems.push(Problem {
                 at: q.loc("reading"),
                 lab_id: q.lab_id.clone(),
                 analyte: q.analyte.clone(),
                 kind: ProblemKind::Qc,
                 message: format!(
-                    "LCS recovery {} is outside {}; {} result(s) of {} / {} are held",
+                    "LCS recovery {} is outside {}; {held} result(s) of {} / {} are held",
                     pct(recovery),
                     window(c.lcs_recovery_pct),
-                    affected.len(),
                     q.analyte,
                     q.method
                 ),
                 hint: "re-prepare and re-analyse the batch for this analyte, or issue with --accept-qc \"REASON\"".into(),
+            });
+            out.rules.push(Rule::Group {
+                check: out.checks.len(),
+                analyte: q.analyte.clone(),
+                method: q.method.clone(),
             });
         }
         out.checks.push(QcCheck {
@@ -556,7 +844,7 @@ fn lcs(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
                 "results held".into()
             },
             blocking: !pass,
-            affected,
+            affected: Vec::new(),
         });
     }
 
@@ -584,18 +872,17 @@ fn matrix_spikes(
             out.problems.push(no_limits(q));
             continue;
         };
-        if m.unit != b.rows[p].unit {
-            return Err(unit_clash(q, m.unit, b.rows[p].unit));
+        if m.unit != p.unit {
+            return Err(unit_clash(q, m.unit, p.unit));
         }
-        let parent = b.rows[p].value_unrounded;
         let name = if q.kind == Kind::MatrixSpike {
             "matrix spike recovery"
         } else {
             "spike duplicate recovery"
         };
-        let rows_text = format!("{} on {}", q.lab_id, b.rows[p].lab_id);
+        let rows_text = format!("{} on {}", q.lab_id, p.lab_id);
         let entry = spiked
-            .entry((b.rows[p].lab_id.clone(), lower(&q.analyte)))
+            .entry((p.lab_id.clone(), lower(&q.analyte)))
             .or_insert_with(|| SpikePair {
                 loq: m.loq,
                 ..Default::default()
@@ -608,7 +895,7 @@ fn matrix_spikes(
         let limit = spike
             .checked_mul(c.spike_parent_max_factor)
             .ok_or_else(|| overflow(q))?;
-        if parent > limit {
+        if p.value > limit {
             out.checks.push(QcCheck {
                 check: name,
                 analyte: q.analyte.clone(),
@@ -628,13 +915,13 @@ fn matrix_spikes(
         }
         let recovery = m
             .value
-            .checked_sub(parent)
+            .checked_sub(p.value)
             .ok_or_else(|| overflow(q))?
             .checked_mul(Decimal::ONE_HUNDRED)
             .and_then(|x| x.checked_div(spike))
             .ok_or_else(|| overflow(q))?;
         let pass = within(recovery, c.spike_recovery_pct);
-        out.checks.push(on_parent(
+        out.on_parent(
             ParentCheck {
                 check: name,
                 analyte: &q.analyte,
@@ -646,9 +933,7 @@ fn matrix_spikes(
                 qualifier: MATRIX_EFFECT,
             },
             p,
-            &b.rows[p].lab_id,
-            &mut out.qualify,
-        ));
+        );
     }
     Ok(spiked)
 }
@@ -666,22 +951,24 @@ fn spike_pairs(
             continue;
         };
         let loq = pair.loq;
-        let p = b.by_id[&(parent_id.as_str(), analyte.clone())];
-        let c = b.config.for_method(&b.rows[p].method);
-        let Some((kind, value, win, pass)) = precision(ms, msd, loq, b.rows[p].unit, c) else {
+        let Some(p) = b.gathered.parent(&parent_id, &analyte) else {
+            continue;
+        };
+        let c = b.config.for_method(&p.method);
+        let Some((kind, value, win, pass)) = precision(ms, msd, loq, p.unit, c) else {
             return Err(EvalError::Overflow {
-                at: Loc::new(b.results_file, b.rows[p].line, "reading"),
+                at: Loc::new(b.results_file, p.line, "reading"),
             });
         };
-        out.checks.push(on_parent(
+        out.on_parent(
             ParentCheck {
                 check: if kind == "RPD" {
                     "spike duplicate RPD"
                 } else {
                     "spike duplicate difference"
                 },
-                analyte: &b.rows[p].analyte,
-                method: &b.rows[p].method,
+                analyte: &p.analyte,
+                method: &p.method,
                 rows: format!("{ms_id} / {msd_id}"),
                 value,
                 window: win,
@@ -689,9 +976,7 @@ fn spike_pairs(
                 qualifier: IMPRECISE,
             },
             p,
-            &b.rows[p].lab_id,
-            &mut out.qualify,
-        ));
+        );
     }
 
     Ok(())
@@ -701,26 +986,19 @@ fn spike_pairs(
 fn duplicates(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
     for q in b.qc_rows.iter().filter(|q| q.kind == Kind::Duplicate) {
         let c = b.config.for_method(&q.method);
-        let Some(p) = b.parent_of(q)? else {
+        let Some(parent) = b.parent_of(q)? else {
             continue;
         };
         let Some(m) = prepared(b.ws, q)? else {
             out.problems.push(no_limits(q));
             continue;
         };
-        if m.unit != b.rows[p].unit {
-            return Err(unit_clash(q, m.unit, b.rows[p].unit));
+        if m.unit != parent.unit {
+            return Err(unit_clash(q, m.unit, parent.unit));
         }
-        let parent = &b.rows[p];
-        let (kind, value, win, pass) = precision(
-            parent.value_unrounded,
-            m.value,
-            parent.loq_unrounded,
-            parent.unit,
-            c,
-        )
-        .ok_or_else(|| overflow(q))?;
-        out.checks.push(on_parent(
+        let (kind, value, win, pass) = precision(parent.value, m.value, parent.loq, parent.unit, c)
+            .ok_or_else(|| overflow(q))?;
+        out.on_parent(
             ParentCheck {
                 check: if kind == "RPD" {
                     "duplicate RPD"
@@ -735,10 +1013,8 @@ fn duplicates(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
                 pass,
                 qualifier: IMPRECISE,
             },
-            p,
-            &parent.lab_id,
-            &mut out.qualify,
-        ));
+            parent,
+        );
     }
 
     Ok(())
@@ -760,44 +1036,34 @@ fn calibration(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
         }
     }
     cal.sort_by_key(|(q, _, _)| (q.analyzed_on, q.line));
+    let first = out.checks.len();
     for f in 0..cal.len() {
         if cal[f].1 {
             continue;
         }
-        let held = bracketed(b, &cal, f);
+        let (after_pass, before_pass) = bracket(&cal, f);
         let q = cal[f].0;
-        let ids = held
-            .iter()
-            .map(|&i| b.rows[i].lab_id.as_str())
-            .collect::<Vec<_>>()
-            .join(", ");
+        out.rules.push(Rule::Bracket {
+            check: first + f,
+            problem: out.problems.len(),
+            analyte: q.analyte.clone(),
+            method: q.method.clone(),
+            after_pass,
+            before_pass,
+        });
+        // The message names the held results (`Plan::finish`).
         out.problems.push(Problem {
             at: q.loc("reading"),
             lab_id: q.lab_id.clone(),
             analyte: q.analyte.clone(),
             kind: ProblemKind::Qc,
-            message: format!(
-                "{} {} is outside {}; results run since the last passing check are held: {}",
-                cal[f].2.check,
-                cal[f].2.value,
-                cal[f].2.window,
-                if ids.is_empty() { "none" } else { &ids }
-            ),
+            message: String::new(),
             hint: "recalibrate and re-analyse the bracketed results, or issue with --accept-qc \"REASON\"".into(),
         });
-        let check = &mut cal[f].2;
-        check.blocking = !held.is_empty();
-        check.note = if held.is_empty() {
-            "no results bracketed".into()
-        } else {
-            format!("held: {ids}")
-        };
-        check.affected = held;
     }
     out.checks.extend(cal.into_iter().map(|(_, _, c)| c));
     Ok(())
 }
-
 /// One CCV or CCB judged at reading level; None when no limits are in force.
 fn calibration_check(b: &Batch<'_>, q: &ResultRow) -> Result<Option<(bool, QcCheck)>, EvalError> {
     let c = b.config.for_method(&q.method);
@@ -842,10 +1108,15 @@ fn calibration_check(b: &Batch<'_>, q: &ResultRow) -> Result<Option<(bool, QcChe
     )))
 }
 
-/// The sample results a failed calibration check `f` holds: those of its
-/// analyte and method run after the last passing check before it and before
-/// the first passing check after it. `cal` is in run order.
-fn bracketed(b: &Batch<'_>, cal: &[(&ResultRow, bool, QcCheck)], f: usize) -> Vec<usize> {
+/// The run positions between which a failed calibration check `f` holds
+/// results of its analyte and method: after the last passing check before
+/// it, before the first passing check after it. `cal` is in run order.
+type Bracket = (
+    Option<(chrono::NaiveDate, u64)>,
+    Option<(chrono::NaiveDate, u64)>,
+);
+
+fn bracket(cal: &[(&ResultRow, bool, QcCheck)], f: usize) -> Bracket {
     let (fa, fm) = (&cal[f].0.analyte, &cal[f].0.method);
     let at = |j: usize| (cal[j].0.analyzed_on, cal[j].0.line);
     let peer = |j: usize| cal[j].1 && same(&cal[j].0.analyte, fa) && same(&cal[j].0.method, fm);
@@ -854,71 +1125,48 @@ fn bracketed(b: &Batch<'_>, cal: &[(&ResultRow, bool, QcCheck)], f: usize) -> Ve
         .find(|&j| at(j) < at(f) && peer(j))
         .map(at);
     let after = (0..cal.len()).find(|&j| at(j) > at(f) && peer(j)).map(at);
-    b.rows
-        .iter()
-        .enumerate()
-        .filter(|(_, r)| in_group(r, fa, fm))
-        .filter(|(_, r)| {
-            let t = (r.analyzed_on, r.line);
-            before.is_none_or(|x| t > x) && after.is_none_or(|x| t < x)
-        })
-        .map(|(i, _)| i)
-        .collect()
+    (before, after)
 }
 
 /// Required QC kinds per analyte and method present among the samples.
 fn required(b: &Batch<'_>, out: &mut Found) -> Result<(), EvalError> {
-    let mut groups: Vec<usize> = Vec::new();
-    for (i, r) in b.rows.iter().enumerate() {
-        if !groups
-            .iter()
-            .any(|&g| in_group(r, &b.rows[g].analyte, &b.rows[g].method))
-        {
-            groups.push(i);
-        }
-    }
-    for first in groups {
-        let (analyte, method) = (b.rows[first].analyte.clone(), b.rows[first].method.clone());
+    for g in &b.gathered.groups {
         for kind in &b.config.required {
-            let present = b
-                .qc_rows
-                .iter()
-                .any(|q| q.kind == *kind && same(&q.analyte, &analyte) && same(&q.method, &method));
+            let present = b.qc_rows.iter().any(|q| {
+                q.kind == *kind && same(&q.analyte, &g.analyte) && same(&q.method, &g.method)
+            });
             if present {
                 continue;
             }
-            let affected: Vec<usize> = b
-                .rows
-                .iter()
-                .enumerate()
-                .filter(|(_, r)| in_group(r, &analyte, &method))
-                .map(|(i, _)| i)
-                .collect();
-            let r = &b.rows[first];
             out.problems.push(Problem {
                 at: Loc::file(b.results_file),
-                lab_id: r.lab_id.clone(),
-                analyte: r.analyte.clone(),
+                lab_id: g.lab_id.clone(),
+                analyte: g.analyte.clone(),
                 kind: ProblemKind::Qc,
                 message: format!(
                     "no {} for {} / {}, which the lab's QC rules require",
                     kind.name(),
-                    r.analyte,
-                    r.method
+                    g.analyte,
+                    g.method
                 ),
                 hint: "add the QC row to the results, or issue with --accept-qc \"REASON\"".into(),
             });
+            out.rules.push(Rule::Group {
+                check: out.checks.len(),
+                analyte: g.analyte.clone(),
+                method: g.method.clone(),
+            });
             out.checks.push(QcCheck {
                 check: kind.name(),
-                analyte: r.analyte.clone(),
-                method: r.method.clone(),
+                analyte: g.analyte.clone(),
+                method: g.method.clone(),
                 rows: String::new(),
                 value: String::new(),
                 window: "required".into(),
                 outcome: Outcome::Missing,
                 note: "results held".into(),
                 blocking: true,
-                affected,
+                affected: Vec::new(),
             });
         }
     }
@@ -1026,6 +1274,7 @@ mod tests {
             manifest: crate::read::Manifest::parse("batch.toml", manifest).unwrap(),
             results_file: "r.csv".into(),
             results_bytes: format!("{HEAD}{rows}").into_bytes(),
+            results_on_disk: None,
         };
         let run = crate::report::RunInfo {
             issued_at: chrono::DateTime::from_timestamp(0, 0).unwrap(),

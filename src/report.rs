@@ -6,7 +6,7 @@ pub use crate::evaluated::{EvalError, LOW_POWER, ReportRow};
 use crate::numeric::round_sig;
 use crate::problem::{Problem, ProblemKind};
 use crate::qc::{QC_EXCEPTION, QcCheck};
-use crate::read::batch::each_result;
+use crate::read::batch::{Pass, each_result_in};
 use crate::read::{
     Batch, Compare, DecisionRule, Kind, NotDetectedStyle, PageSize, ResultRow, Workspace,
 };
@@ -107,14 +107,50 @@ impl Report {
     }
 }
 
-/// Evaluates a batch, each result as it is read, so a report of a million
-/// rows never holds its input rows and its report rows at once.
+/// Evaluates a batch into its report model, holding every row.
 pub fn build(
     ws: &Workspace,
     batch: &Batch,
     revision: u32,
     run: &RunInfo,
 ) -> Result<Report, EvalError> {
+    let mut e = evaluate(ws, batch, revision, run)?;
+    let mut rows = Vec::with_capacity(e.count());
+    e.each_row(|_, r| {
+        rows.push(r);
+        Ok::<(), EvalError>(())
+    })?;
+    let mut report = e.finish();
+    report.rows = rows;
+    Ok(report)
+}
+
+/// A batch evaluated but for its rows: the header, the QC checks as judged
+/// and the plan that qualifies each result. `each_row` then reads the
+/// results again and hands each finished row on, so a batch of any length
+/// is written in flat memory; every input error has been found before the
+/// first row is handed on.
+pub struct Evaluation<'a> {
+    ws: &'a Workspace,
+    batch: &'a Batch,
+    header: Header,
+    qc: Vec<ResultRow>,
+    plan: crate::qc::Plan,
+    problems: Vec<Problem>,
+    limits_used: Vec<crate::read::LimitRow>,
+    specs_used: Vec<crate::read::SpecRow>,
+    count: usize,
+}
+
+/// Reads the batch's QC rows, then every row once: the client results are
+/// classified and gathered for the QC rules (the QC rows may stand anywhere
+/// in the file, a spike before its parent), and the rules judged.
+pub fn evaluate<'a>(
+    ws: &'a Workspace,
+    batch: &'a Batch,
+    revision: u32,
+    run: &RunInfo,
+) -> Result<Evaluation<'a>, EvalError> {
     let lab = &ws.lab;
     let m = &batch.manifest;
     let header = Header {
@@ -142,16 +178,21 @@ pub fn build(
         verification_code: None,
         replaces: None,
     };
-    let mut rows = Vec::with_capacity(batch.results_bytes.len() / 110);
+    // First the QC rows alone, so the gathering knows which parents to keep.
     let mut qc = Vec::new();
+    each_result_in(&batch.results_file, batch.source(), Pass::Qc, |row| {
+        qc.push(row);
+        Ok::<(), EvalError>(())
+    })?;
+    let mut gather = crate::qc::Gather::new(&qc);
+    qc.clear();
     let mut problems = Vec::new();
     let mut limits_used: std::collections::BTreeMap<u64, crate::read::LimitRow> =
         Default::default();
     let mut specs_used: std::collections::BTreeMap<u64, crate::read::SpecRow> = Default::default();
-    // L_D's t multiplier per spike count: the t quantiles are costly and the
-    // same for every row of a study.
+    let mut methods: Vec<Arc<str>> = Vec::new();
     let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
-    each_result(&batch.results_file, &batch.results_bytes, |row| {
+    each_result_in(&batch.results_file, batch.source(), Pass::Check, |row| {
         if row.kind != Kind::Sample {
             qc.push(row);
             return Ok(());
@@ -167,36 +208,120 @@ pub fn build(
                         .entry(spec.row.line)
                         .or_insert_with(|| spec.row.clone());
                 }
-                let over_range = r.over_range;
-                if over_range {
+                if r.over_range {
                     problems.push(over_range_problem(&row, &r));
                 }
-                rows.push(classify_row(
-                    row,
-                    &r,
-                    &header,
-                    lab.not_detected_style,
-                    &mut ld_factors,
-                )?);
+                if !methods.iter().any(|m| **m == *row.method) {
+                    methods.push(row.method.clone());
+                }
+                let out = classify_row(row, &r, &header, lab.not_detected_style, &mut ld_factors)?;
+                gather.sample(&out);
             }
         }
         Ok::<(), EvalError>(())
     })?;
-    rows.shrink_to_fit();
-    let evaluated = crate::qc::evaluate(ws, &batch.results_file, &qc, &mut rows, &problems)?;
+    let plan = crate::qc::evaluate(ws, &batch.results_file, &qc, &gather, &problems)?;
     let mut header = header;
-    header.methods = methods_used(&lab.methods, &rows);
-    problems.extend(evaluated.problems);
-    Ok(Report {
+    header.methods = methods_used(&lab.methods, &methods);
+    Ok(Evaluation {
+        ws,
+        batch,
         header,
-        rows,
         qc,
-        qc_checks: evaluated.checks,
-        qc_exception: None,
+        plan,
         problems,
         limits_used: limits_used.into_values().collect(),
         specs_used: specs_used.into_values().collect(),
+        count: gather.count(),
     })
+}
+
+/// An error of evaluation, or of whatever took the row.
+enum RowError<E> {
+    Eval(EvalError),
+    Each(E),
+}
+
+impl<E> From<EvalError> for RowError<E> {
+    fn from(e: EvalError) -> Self {
+        RowError::Eval(e)
+    }
+}
+
+impl<E> From<crate::read::ReadError> for RowError<E> {
+    fn from(e: crate::read::ReadError) -> Self {
+        RowError::Eval(e.into())
+    }
+}
+
+impl Evaluation<'_> {
+    pub fn header(&self) -> &Header {
+        &self.header
+    }
+
+    /// The number of client results.
+    pub fn count(&self) -> usize {
+        self.count
+    }
+
+    /// Whether the batch is held: known before any row is written, as the
+    /// rules that hold it were judged on the gathered results.
+    pub fn is_blocked(&self) -> bool {
+        !self.problems.is_empty() || self.plan.holds()
+    }
+
+    /// Reads the results again and hands each client result, classified and
+    /// qualified, to `each` in file order. May be run more than once (a
+    /// table sizes its columns, then prints); `finish` reflects the last run.
+    pub fn each_row<E: From<EvalError>>(
+        &mut self,
+        mut each: impl FnMut(&Header, ReportRow) -> Result<(), E>,
+    ) -> Result<(), E> {
+        self.plan.restart();
+        let (ws, header, plan) = (self.ws, &self.header, &mut self.plan);
+        let nd_style = ws.lab.not_detected_style;
+        let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
+        let mut index = 0usize;
+        let mut pass = |row: ResultRow| -> Result<(), RowError<E>> {
+            if row.kind != Kind::Sample {
+                return Ok(());
+            }
+            if let Resolution::Resolved(r) = resolve::resolve(&row, ws).map_err(EvalError::from)? {
+                let mut out = classify_row(row, &r, header, nd_style, &mut ld_factors)?;
+                plan.qualify(index, &mut out);
+                index += 1;
+                each(header, out).map_err(RowError::Each)?;
+            }
+            Ok(())
+        };
+        each_result_in(
+            &self.batch.results_file,
+            self.batch.source(),
+            Pass::Again,
+            &mut pass,
+        )
+        .map_err(|e| match e {
+            RowError::Eval(e) => E::from(e),
+            RowError::Each(e) => e,
+        })
+    }
+
+    /// The report model, without its rows (which `each_row` handed on).
+    pub fn finish(self) -> Report {
+        let evaluated = self.plan.finish();
+        let mut problems = self.problems;
+        problems.extend(evaluated.problems);
+        Report {
+            header: self.header,
+            rows: Vec::new(),
+            qc: self.qc,
+            qc_checks: evaluated.checks,
+            qc_exception: None,
+            problems,
+            limits_used: self.limits_used,
+            specs_used: self.specs_used,
+        }
+    }
 }
 
 fn classify_row(
@@ -350,20 +475,18 @@ fn over_range_problem(row: &ResultRow, r: &resolve::Resolved<'_>) -> Problem {
 /// from lab.toml.
 fn methods_used(
     lab_methods: &std::collections::BTreeMap<String, String>,
-    rows: &[ReportRow],
+    used: &[Arc<str>],
 ) -> Vec<(String, String)> {
-    let mut methods: Vec<(String, String)> = Vec::new();
-    for r in rows {
-        if !methods.iter().any(|(m, _)| m.as_str() == &*r.method) {
+    used.iter()
+        .map(|m| {
             let description = lab_methods
                 .iter()
-                .find(|(id, _)| id.eq_ignore_ascii_case(&r.method))
+                .find(|(id, _)| id.eq_ignore_ascii_case(m))
                 .map(|(_, d)| d.clone())
                 .unwrap_or_default();
-            methods.push((r.method.to_string(), description));
-        }
-    }
-    methods
+            (m.to_string(), description)
+        })
+        .collect()
 }
 
 /// L_D and β at the limit for a not-detected or below-LOQ result with a

@@ -254,6 +254,7 @@ fn impact_over_twenty_thousand_reports() {
             manifest: limen::read::Manifest::parse("batch.toml", &manifest).unwrap(),
             results_file: "r.csv".into(),
             results_bytes: csv.into_bytes(),
+            results_on_disk: None,
         };
         let report = limen::report::build(&ws, &batch, 0, &run).unwrap();
         let id = ledger

@@ -310,6 +310,7 @@ fn workspace_reader_in_memory(name: &str, file: &str, n: u32) {
                 manifest,
                 results_file: "results.csv".into(),
                 results_bytes: texts[5].clone(),
+                results_on_disk: None,
             };
             limen::report::build(&ws, &batch, 0, &run)?;
             Ok(())

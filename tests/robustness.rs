@@ -72,6 +72,7 @@ proptest! {
             manifest: Manifest::parse("batch.toml", manifest).unwrap(),
             results_file: "r.csv".into(),
             results_bytes: csv.into_bytes(),
+            results_on_disk: None,
         };
         let run = limen::RunInfo { issued_at: chrono::DateTime::from_timestamp(0, 0).unwrap(), tool_version: "t".into() };
         match limen::report::build(&workspace(), &batch, 0, &run) {

@@ -109,6 +109,7 @@ pub fn recompute(
         manifest,
         results_file: snap.results_name.clone(),
         results_bytes: snap.results.clone(),
+        results_on_disk: None,
     };
     let report = crate::report::build(&ws, &batch, revision, run)
         .map_err(|e: EvalError| Error::Eval(Box::new(e)))?;

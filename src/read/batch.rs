@@ -490,11 +490,25 @@ pub struct Batch {
     pub manifest_text: String,
     pub manifest: Manifest,
     pub results_file: String,
+    /// The results as read; empty when `results_on_disk` is set.
     pub results_bytes: Vec<u8>,
+    /// Set by `Batch::open`: the results are read from disk on each pass.
+    pub results_on_disk: Option<OnDisk>,
 }
 
 impl Batch {
+    /// The batch with its results read into memory (what the ledger keeps).
     pub fn load(dir: &Path) -> Result<Batch, ReadError> {
+        let mut b = Batch::open(dir)?;
+        if let Some(f) = b.results_on_disk.take() {
+            b.results_bytes = read_file(&f.path)?;
+        }
+        Ok(b)
+    }
+
+    /// The batch with its results left on disk and read on each pass, so a
+    /// large file is never held.
+    pub fn open(dir: &Path) -> Result<Batch, ReadError> {
         let manifest_path = dir.join("batch.toml");
         let manifest_file = manifest_path.display().to_string();
         if !manifest_path.is_file() {
@@ -542,20 +556,33 @@ impl Batch {
                 "give the results CSV's file name, relative to the batch folder",
             ));
         }
-        let results_bytes = read_file(&results_path)?;
         Ok(Batch {
             dir: dir.to_path_buf(),
             manifest_file,
             manifest_text,
             manifest,
             results_file,
-            results_bytes,
+            results_bytes: Vec::new(),
+            results_on_disk: Some(OnDisk::new(&results_path)?),
         })
+    }
+
+    /// Where a pass reads the results from.
+    pub fn source(&self) -> Source<'_> {
+        match &self.results_on_disk {
+            Some(f) => Source::File(f),
+            None => Source::Bytes(&self.results_bytes),
+        }
     }
 
     /// Every result, checked; errors name file, line and field.
     pub fn rows(&self) -> Result<Vec<ResultRow>, ReadError> {
-        parse_results(&self.results_file, &self.results_bytes)
+        let mut rows = Vec::new();
+        each_result_in(&self.results_file, self.source(), Pass::Check, |r| {
+            rows.push(r);
+            Ok::<(), ReadError>(())
+        })?;
+        Ok(rows)
     }
 }
 
