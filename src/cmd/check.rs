@@ -1,6 +1,6 @@
 use super::{blocked_code, colour_stdout, load, run_info};
 use limen::Error;
-use limen::render::csv::Csv;
+use limen::render::csv::Rows;
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -23,25 +23,35 @@ pub struct Args {
 
 pub fn run(a: Args) -> Result<i32, Error> {
     let (ws, batch) = load(&a.batch, a.workspace.as_deref())?;
-    let report = limen::report::build(&ws, &batch, 0, &run_info()?)?;
+    let run = run_info()?;
     let mut out = std::io::stdout().lock();
     match a.format {
         Format::Table => {
+            let report = limen::report::build(&ws, &batch, 0, &run)?;
             out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes())
                 .and_then(|()| out.flush())
                 .map_err(Error::stdout)?;
+            Ok(blocked_code(report.is_blocked()))
         }
         Format::Csv => {
-            Csv.write(
-                &report,
+            // Every input error is found before the first line is written;
+            // then each row goes out as it is classified.
+            let mut e = limen::report::evaluate(&ws, &batch, 0, &run)?;
+            let header = e.header().clone();
+            let mut rows = Rows::new(
+                &header,
+                None,
                 std::io::BufWriter::with_capacity(1 << 16, &mut out),
             )
             .map_err(Error::stdout)?;
+            e.each_row(|_, r| rows.row(&r).map_err(Error::stdout))?;
+            rows.finish().map_err(Error::stdout)?;
+            let report = e.finish();
             for p in &report.problems {
                 eprintln!("blocked: {p}");
                 eprintln!("hint: {}", p.hint);
             }
+            Ok(blocked_code(report.is_blocked()))
         }
     }
-    Ok(blocked_code(report.is_blocked()))
 }

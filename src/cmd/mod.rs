@@ -87,9 +87,10 @@ pub fn workspace_for(batch_dir: &Path, explicit: Option<&Path>) -> Result<Worksp
     Ok(Workspace::load(&root)?)
 }
 
+/// The workspace and the batch, its results left on disk to be read in passes.
 pub fn load(batch_dir: &Path, explicit: Option<&Path>) -> Result<(Workspace, Batch), Error> {
     let ws = workspace_for(batch_dir, explicit)?;
-    let batch = Batch::load(batch_dir)?;
+    let batch = Batch::open(batch_dir)?;
     Ok((ws, batch))
 }
 

@@ -43,10 +43,17 @@ pub fn neutralise(text: &str) -> std::borrow::Cow<'_, str> {
     }
 }
 
+/// What every row of one report's CSV repeats.
+struct Common<'a> {
+    report: &'a str,
+    revision: u32,
+    qc_exception: Option<&'a str>,
+}
+
 fn write_row<W: std::io::Write>(
     w: &mut ::csv::Writer<W>,
     num: &mut String,
-    report: &Report,
+    report: &Common<'_>,
     r: &ReportRow,
 ) -> ::csv::Result<()> {
     use std::fmt::Write as _;
@@ -56,8 +63,8 @@ fn write_row<W: std::io::Write>(
         let _ = write!(num, "{v}");
         w.write_field(num.as_bytes())
     };
-    text(w, &report.header.report)?;
-    number(w, &report.header.revision)?;
+    text(w, report.report)?;
+    number(w, &report.revision)?;
     text(w, &r.lab_id)?;
     text(w, &r.client_id)?;
     text(w, &r.description)?;
@@ -97,10 +104,10 @@ fn write_row<W: std::io::Write>(
 }
 
 /// Qualifiers joined by ';'; an accepted QC exception carries its reason.
-fn qualifiers(report: &Report, r: &ReportRow) -> String {
+fn qualifiers(report: &Common<'_>, r: &ReportRow) -> String {
     r.qualifiers
         .iter()
-        .map(|q| match (&report.qc_exception, q.as_str()) {
+        .map(|q| match (report.qc_exception, q.as_str()) {
             (Some(reason), crate::qc::QC_EXCEPTION) => {
                 format!("{q} ({})", reason.replace(';', ","))
             }
@@ -133,20 +140,57 @@ impl Csv {
 
     /// Streams the CSV to `out`, so a large report is not held twice.
     pub fn write(&self, report: &Report, out: impl std::io::Write) -> std::io::Result<()> {
+        let mut rows = Rows::new(&report.header, report.qc_exception.as_deref(), out)?;
+        for r in &report.rows {
+            rows.row(r)?;
+        }
+        rows.finish()
+    }
+}
+
+/// A report's CSV written row by row, as an evaluation hands the rows on.
+pub struct Rows<'a, W: std::io::Write> {
+    w: ::csv::Writer<W>,
+    num: String,
+    common: Common<'a>,
+}
+
+/// Keeps an I/O error's kind, so a closed pipe stays a closed pipe.
+fn io(e: ::csv::Error) -> std::io::Error {
+    match e.into_kind() {
+        ::csv::ErrorKind::Io(e) => e,
+        other => std::io::Error::other(format!("{other:?}")),
+    }
+}
+
+impl<'a, W: std::io::Write> Rows<'a, W> {
+    /// Writes the header line.
+    pub fn new(
+        header: &'a crate::report::Header,
+        qc_exception: Option<&'a str>,
+        out: W,
+    ) -> std::io::Result<Self> {
         let mut w = ::csv::WriterBuilder::new()
             .terminator(::csv::Terminator::Any(b'\n'))
             .from_writer(out);
-        // Keep an I/O error's kind, so a closed pipe stays a closed pipe.
-        let io = |e: ::csv::Error| match e.into_kind() {
-            ::csv::ErrorKind::Io(e) => e,
-            other => std::io::Error::other(format!("{other:?}")),
-        };
         w.write_record(HEADER).map_err(io)?;
-        let mut num = String::new();
-        for r in &report.rows {
-            write_row(&mut w, &mut num, report, r).map_err(io)?;
-        }
-        w.flush()
+        Ok(Rows {
+            w,
+            num: String::new(),
+            common: Common {
+                report: &header.report,
+                revision: header.revision,
+                qc_exception,
+            },
+        })
+    }
+
+    pub fn row(&mut self, r: &ReportRow) -> std::io::Result<()> {
+        write_row(&mut self.w, &mut self.num, &self.common, r).map_err(io)
+    }
+
+    pub fn finish(mut self) -> std::io::Result<()> {
+        self.w.flush()
     }
 }
 
