@@ -689,6 +689,29 @@ mod tests {
     }
 
     #[test]
+    fn a_results_file_changed_between_passes_is_refused() {
+        let dir = std::env::temp_dir().join(format!("limen-ondisk-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let path = dir.join("r.csv");
+        let row = "S1,sample,Pb,paint,6010D,5,ug/L,1,0.1,50,2026-11-13\n";
+        std::fs::write(&path, format!("{HEAD}{row}")).unwrap();
+        let on_disk = OnDisk::new(&path).unwrap();
+        let count = |f: &OnDisk| {
+            let mut n = 0;
+            each_result_in("r.csv", Source::File(f), Pass::Check, |_| {
+                n += 1;
+                Ok::<(), ReadError>(())
+            })
+            .map(|()| n)
+        };
+        assert_eq!(count(&on_disk).unwrap(), 1);
+        std::fs::write(&path, format!("{HEAD}{row}{}", row.replace("S1", "S2"))).unwrap();
+        let e = count(&on_disk).unwrap_err().to_string();
+        assert!(e.contains("changed while limen was reading it"), "{e}");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
     fn manifest_dates_as_toml_or_text() {
         let base = "batch='B'\nreport='R-1'\nclient_name='C'\nclient_address='A'\nclient_contact='P'\nresults='r.csv'\n";
         let m = Manifest::parse("b.toml", &format!("{base}received_on=2026-11-20\n")).unwrap();
