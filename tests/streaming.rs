@@ -57,8 +57,9 @@ fn batch(t: &TestDir, dir: &str, rows: &[String]) {
     );
 }
 
-/// The CSV of the report model built in memory, through the library.
-fn in_memory(t: &TestDir, dir: &str) -> Option<String> {
+/// The CSV and the table of the report model built in memory, through the
+/// library.
+fn in_memory(t: &TestDir, dir: &str) -> Option<(String, String)> {
     let ws = limen::read::Workspace::load(&t.path("ws")).unwrap();
     let batch = limen::read::Batch::load(&t.path(&format!("ws/{dir}"))).unwrap();
     let run = limen::RunInfo {
@@ -66,11 +67,14 @@ fn in_memory(t: &TestDir, dir: &str) -> Option<String> {
         tool_version: env!("CARGO_PKG_VERSION").into(),
     };
     let report = limen::report::build(&ws, &batch, 0, &run).ok()?;
-    Some(String::from_utf8(limen::render::csv::Csv.bytes(&report)).unwrap())
+    Some((
+        String::from_utf8(limen::render::csv::Csv.bytes(&report)).unwrap(),
+        limen::render::table::render(&report, false),
+    ))
 }
 
 #[test]
-fn streamed_and_in_memory_csv_are_the_same_bytes_on_every_batch() {
+fn streamed_and_in_memory_csv_and_table_are_the_same_bytes_on_every_batch() {
     let t = TestDir::new("stream-same");
     t.demo_workspace("ws");
     let mut all = samples();
@@ -85,9 +89,13 @@ fn streamed_and_in_memory_csv_are_the_same_bytes_on_every_batch() {
     assert!(dirs.len() >= 4, "{dirs:?}");
     for dir in &dirs {
         let r = t.limen(&["check", &format!("ws/{dir}"), "--format", "csv"]);
-        let expected = in_memory(&t, dir).unwrap();
-        assert_eq!(r.stdout, expected, "{dir}");
+        let (csv, table) = in_memory(&t, dir).unwrap();
+        assert_eq!(r.stdout, csv, "{dir}");
         assert!(r.code == 0 || r.code == 3, "{dir}: {}", r.stderr);
+        let r = t.limen(&["check", &format!("ws/{dir}")]);
+        // The library was given absolute paths, the binary relative ones.
+        let table = table.replace(&format!("{}/", t.root.display()), "");
+        assert_eq!(r.stdout, table, "{dir}");
     }
     // The mixed batch exercises the QC rules that qualify rows.
     let r = t.limen(&["check", "ws/qc-mix", "--format", "csv"]);

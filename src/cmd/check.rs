@@ -1,6 +1,7 @@
 use super::{blocked_code, colour_stdout, load, run_info};
 use limen::Error;
 use limen::render::csv::Rows;
+use limen::render::table::Table;
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -27,9 +28,20 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut out = std::io::stdout().lock();
     match a.format {
         Format::Table => {
-            let report = limen::report::build(&ws, &batch, 0, &run)?;
-            out.write_all(limen::render::table::render(&report, colour_stdout()).as_bytes())
-                .and_then(|()| out.flush())
+            // Two passes: the column widths, then the lines.
+            let mut e = limen::report::evaluate(&ws, &batch, 0, &run)?;
+            let mut table = Table::new(colour_stdout());
+            e.each_row(|_, r| {
+                table.widen(&r);
+                Ok::<(), Error>(())
+            })?;
+            let mut w = std::io::BufWriter::with_capacity(1 << 16, &mut out);
+            w.write_all(table.head(e.header()).as_bytes())
+                .map_err(Error::stdout)?;
+            e.each_row(|_, r| w.write_all(table.row(&r).as_bytes()).map_err(Error::stdout))?;
+            let report = e.finish();
+            w.write_all(table.tail(&report).as_bytes())
+                .and_then(|()| w.flush())
                 .map_err(Error::stdout)?;
             Ok(blocked_code(report.is_blocked()))
         }

@@ -3,7 +3,7 @@
 
 use crate::classify::Verdict;
 use crate::numeric::plain;
-use crate::report::Report;
+use crate::report::{Header, Report, ReportRow};
 
 const HEAD: [&str; 7] = [
     "lab id", "analyte", "result", "unit", "state", "limit", "verdict",
@@ -78,55 +78,60 @@ fn qc_section(report: &Report) -> String {
     out
 }
 
-pub fn render(report: &Report, colour: bool) -> String {
-    let h = &report.header;
-    let mut out = format!(
-        "{} rev {} · batch {} · {} · decision rule: {}\n\n",
-        h.report,
-        h.revision,
-        h.batch,
-        h.client_name,
-        h.decision_rule.name()
-    );
-    let cells: Vec<[String; 7]> = report
-        .rows
-        .iter()
-        .map(|r| {
-            [
-                r.lab_id.clone(),
-                r.analyte.to_string(),
-                r.reported.clone(),
-                r.unit.symbol().to_string(),
-                r.state.name().to_string(),
-                match (&r.spec_limit, &r.spec) {
-                    (Some(l), Some(s)) => format!("{} ({s})", plain(*l)),
-                    _ => String::new(),
-                },
-                match (r.verdict, r.qualifiers.is_empty()) {
-                    (Some(v), true) => v.name().to_string(),
-                    (Some(v), false) => format!("{} [{}]", v.name(), r.qualifiers.join("; ")),
-                    (None, true) => String::new(),
-                    (None, false) => format!("[{}]", r.qualifiers.join("; ")),
-                },
-            ]
-        })
-        .collect();
-    let mut widths = HEAD.map(width);
-    for row in &cells {
-        for (w, c) in widths.iter_mut().zip(row) {
+/// The cells of one result's line.
+fn cells(r: &ReportRow) -> [String; 7] {
+    [
+        r.lab_id.clone(),
+        r.analyte.to_string(),
+        r.reported.clone(),
+        r.unit.symbol().to_string(),
+        r.state.name().to_string(),
+        match (&r.spec_limit, &r.spec) {
+            (Some(l), Some(s)) => format!("{} ({s})", plain(*l)),
+            _ => String::new(),
+        },
+        match (r.verdict, r.qualifiers.is_empty()) {
+            (Some(v), true) => v.name().to_string(),
+            (Some(v), false) => format!("{} [{}]", v.name(), r.qualifiers.join("; ")),
+            (None, true) => String::new(),
+            (None, false) => format!("[{}]", r.qualifiers.join("; ")),
+        },
+    ]
+}
+
+/// The results table, written as rows arrive once the column widths are
+/// known: `widen` over every row, then `head`, `row` for each, and `tail`.
+pub struct Table {
+    widths: [usize; 7],
+    colour: bool,
+    rows: usize,
+}
+
+impl Table {
+    pub fn new(colour: bool) -> Table {
+        Table {
+            widths: HEAD.map(width),
+            colour,
+            rows: 0,
+        }
+    }
+
+    pub fn widen(&mut self, r: &ReportRow) {
+        for (w, c) in self.widths.iter_mut().zip(&cells(r)) {
             *w = (*w).max(width(c));
         }
     }
-    let line = |cols: [&str; 7], verdict: Option<Verdict>| {
+
+    fn line(&self, cols: [&str; 7], verdict: Option<Verdict>) -> String {
         let mut s = String::new();
         for (i, c) in cols.iter().enumerate() {
-            let pad = widths[i] - width(c);
+            let pad = self.widths[i] - width(c).min(self.widths[i]);
             // Results are numbers: right-align them so the digits line up.
             if i == 2 {
                 s.push_str(&" ".repeat(pad));
                 s.push_str(c);
             } else if i == 6 {
-                s.push_str(&paint(c, verdict, colour));
+                s.push_str(&paint(c, verdict, self.colour));
             } else {
                 s.push_str(c);
                 s.push_str(&" ".repeat(pad));
@@ -136,33 +141,72 @@ pub fn render(report: &Report, colour: bool) -> String {
             }
         }
         s.trim_end().to_string() + "\n"
-    };
-    out.push_str(&line(HEAD, None));
-    out.push_str(&line(
-        widths.map(|w| "─".repeat(w)).each_ref().map(|s| s.as_str()),
-        None,
-    ));
-    for (row, r) in cells.iter().zip(&report.rows) {
-        out.push_str(&line(row.each_ref().map(|s| s.as_str()), r.verdict));
     }
-    if report.rows.is_empty() {
-        out.push_str("(no client results)\n");
+
+    /// The title and the column heads.
+    pub fn head(&self, h: &Header) -> String {
+        let mut out = format!(
+            "{} rev {} · batch {} · {} · decision rule: {}\n\n",
+            h.report,
+            h.revision,
+            h.batch,
+            h.client_name,
+            h.decision_rule.name()
+        );
+        out.push_str(&self.line(HEAD, None));
+        out.push_str(
+            &self.line(
+                self.widths
+                    .map(|w| "─".repeat(w))
+                    .each_ref()
+                    .map(|s| s.as_str()),
+                None,
+            ),
+        );
+        out
     }
-    out.push('\n');
-    out.push_str(&qc_section(report));
-    if report.problems.is_empty() {
-        out.push_str(&format!(
-            "{} client result(s); no blocking problems: the batch can be issued.\n",
-            report.rows.len()
-        ));
-    } else {
-        out.push_str(&format!(
-            "BLOCKED: {} problem(s) must be resolved before this batch is issued:\n",
-            report.problems.len()
-        ));
-        for p in &report.problems {
-            out.push_str(&format!("  - {p}\n    hint: {}\n", p.hint));
+
+    pub fn row(&mut self, r: &ReportRow) -> String {
+        self.rows += 1;
+        let c = cells(r);
+        self.line(c.each_ref().map(|s| s.as_str()), r.verdict)
+    }
+
+    /// QC and what blocks the batch, from the finished report model.
+    pub fn tail(&self, report: &Report) -> String {
+        let mut out = String::new();
+        if self.rows == 0 {
+            out.push_str("(no client results)\n");
         }
+        out.push('\n');
+        out.push_str(&qc_section(report));
+        if report.problems.is_empty() {
+            out.push_str(&format!(
+                "{} client result(s); no blocking problems: the batch can be issued.\n",
+                self.rows
+            ));
+        } else {
+            out.push_str(&format!(
+                "BLOCKED: {} problem(s) must be resolved before this batch is issued:\n",
+                report.problems.len()
+            ));
+            for p in &report.problems {
+                out.push_str(&format!("  - {p}\n    hint: {}\n", p.hint));
+            }
+        }
+        out
     }
+}
+
+pub fn render(report: &Report, colour: bool) -> String {
+    let mut t = Table::new(colour);
+    for r in &report.rows {
+        t.widen(r);
+    }
+    let mut out = t.head(&report.header);
+    for r in &report.rows {
+        out.push_str(&t.row(r));
+    }
+    out.push_str(&t.tail(report));
     out
 }
