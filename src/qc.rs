@@ -457,17 +457,6 @@ impl Plan {
         }
     }
 
-    /// Whether a check holds the batch (its problem is known before any
-    /// row is written; only its wording waits for the rows).
-    pub fn holds(&self) -> bool {
-        !self.problems.is_empty()
-    }
-
-    /// Whether any rule can touch a result (none when every check passed).
-    pub fn is_idle(&self) -> bool {
-        self.rules.is_empty()
-    }
-
     /// Applies the rules to client result `index` (in file order).
     pub fn qualify(&mut self, index: usize, r: &mut ReportRow) {
         for (k, rule) in self.rules.iter().enumerate() {

@@ -184,8 +184,9 @@ pub fn evaluate<'a>(
         qc.push(row);
         Ok::<(), EvalError>(())
     })?;
+    // Should this pass have stopped early, the checking pass below fails on
+    // the same row, so when it succeeds these are all the QC rows.
     let mut gather = crate::qc::Gather::new(&qc);
-    qc.clear();
     let mut problems = Vec::new();
     let mut limits_used: std::collections::BTreeMap<u64, crate::read::LimitRow> =
         Default::default();
@@ -194,7 +195,6 @@ pub fn evaluate<'a>(
     let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
     each_result_in(&batch.results_file, batch.source(), Pass::Check, |row| {
         if row.kind != Kind::Sample {
-            qc.push(row);
             return Ok(());
         }
         match resolve::resolve(&row, ws)? {
@@ -262,12 +262,6 @@ impl Evaluation<'_> {
     /// The number of client results.
     pub fn count(&self) -> usize {
         self.count
-    }
-
-    /// Whether the batch is held: known before any row is written, as the
-    /// rules that hold it were judged on the gathered results.
-    pub fn is_blocked(&self) -> bool {
-        !self.problems.is_empty() || self.plan.holds()
     }
 
     /// Reads the results again and hands each client result, classified and

@@ -166,8 +166,12 @@ fn non_empty(s: &str) -> Option<String> {
 }
 
 pub fn parse_results(file: &str, bytes: &[u8]) -> Result<Vec<ResultRow>, ReadError> {
+    collect(file, Source::Bytes(bytes))
+}
+
+fn collect(file: &str, source: Source<'_>) -> Result<Vec<ResultRow>, ReadError> {
     let mut rows = Vec::new();
-    each_result(file, bytes, |r| {
+    each_result_in(file, source, Pass::Check, |r| {
         rows.push(r);
         Ok::<(), ReadError>(())
     })?;
@@ -282,33 +286,26 @@ fn repeated(
         return Ok(None);
     }
     let reader = source.open(file)?;
-    let mut last = (0u64, String::new(), String::new(), Kind::Sample);
+    let mut last = (String::new(), String::new(), Kind::Sample);
     let found = super::repeats::confirm(&repeats.candidates, limit, |f| {
         let mut key = String::new();
+        // Stopping early is not an error of the file: `Quiet`.
         let _ = read_rows_from(file, reader, COLUMNS, |r| {
-            let (Some(kind), lab_id, analyte) =
-                (Kind::parse(r.get(KIND)), r.get(LAB_ID), r.get(ANALYTE))
-            else {
-                return Err(ReadError::Empty {
-                    file: String::new(),
-                    expected: Vec::new(),
-                });
+            let Some(kind) = Kind::parse(r.get(KIND)) else {
+                return Err(Halt::<()>::Quiet);
             };
+            let (lab_id, analyte) = (r.get(LAB_ID), r.get(ANALYTE));
             repeat_key(&mut key, lab_id, analyte, kind);
-            last = (r.line, lab_id.to_string(), analyte.to_string(), kind);
+            last = (lab_id.to_string(), analyte.to_string(), kind);
             if f(r.line, &key) {
                 Ok(())
             } else {
-                // Stops the scan; not an error of the file.
-                Err(ReadError::Empty {
-                    file: String::new(),
-                    expected: Vec::new(),
-                })
+                Err(Halt::Quiet)
             }
         });
     });
     Ok(found.map(|(line, first)| {
-        let (_, lab_id, analyte, kind) = &last;
+        let (lab_id, analyte, kind) = &last;
         ReadError::field(
             Loc::new(file, line, "lab_id"),
             format!(
@@ -577,12 +574,7 @@ impl Batch {
 
     /// Every result, checked; errors name file, line and field.
     pub fn rows(&self) -> Result<Vec<ResultRow>, ReadError> {
-        let mut rows = Vec::new();
-        each_result_in(&self.results_file, self.source(), Pass::Check, |r| {
-            rows.push(r);
-            Ok::<(), ReadError>(())
-        })?;
-        Ok(rows)
+        collect(&self.results_file, self.source())
     }
 }
 

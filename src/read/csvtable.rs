@@ -200,31 +200,11 @@ struct Lines {
 }
 
 impl Lines {
-    /// Moves to the record starting at `start` and returns its line. A start
-    /// on a CR or LF (where the csv crate reports a CRLF file's records)
-    /// moves past it.
-    fn advance(&mut self, ends: &mut std::collections::VecDeque<(u64, u8)>, start: u64) -> u64 {
-        let mut s = start;
-        while let Some(&(p, b)) = ends.front() {
-            if p <= s {
-                if p == s {
-                    s += 1;
-                }
-                if b == b'\n' {
-                    self.line += 1;
-                }
-                ends.pop_front();
-            } else {
-                break;
-            }
-        }
-        self.line
-    }
-
-    /// The line of an error at `byte`, without moving.
-    fn peek(&self, ends: &std::collections::VecDeque<(u64, u8)>, byte: u64) -> u64 {
-        let mut s = byte;
-        let mut line = self.line;
+    /// The line of a record (or error) starting at `byte`, and how many of
+    /// the CR/LF offsets lie before it. A start on a CR or LF (where the csv
+    /// crate reports a CRLF file's records) moves past it.
+    fn walk(&self, ends: &std::collections::VecDeque<(u64, u8)>, byte: u64) -> (u64, usize) {
+        let (mut s, mut line, mut passed) = (byte, self.line, 0);
         for &(p, b) in ends {
             if p > s {
                 break;
@@ -235,8 +215,22 @@ impl Lines {
             if b == b'\n' {
                 line += 1;
             }
+            passed += 1;
         }
+        (line, passed)
+    }
+
+    /// Moves to the record starting at `start` and returns its line.
+    fn advance(&mut self, ends: &mut std::collections::VecDeque<(u64, u8)>, start: u64) -> u64 {
+        let (line, passed) = self.walk(ends, start);
+        ends.drain(..passed);
+        self.line = line;
         line
+    }
+
+    /// The line of an error at `byte`, without moving.
+    fn peek(&self, ends: &std::collections::VecDeque<(u64, u8)>, byte: u64) -> u64 {
+        self.walk(ends, byte).0
     }
 }
 
