@@ -608,4 +608,248 @@ mod tests {
             r.warnings
         );
     }
+
+    const SET_ONE: [f64; 7] = [2.5, 2.7, 2.2, 2.2, 3.1, 2.6, 2.8];
+
+    #[test]
+    fn loq_rules_parse_name_and_refuse() {
+        assert_eq!(LoqRule::parse(" ten-sd "), Ok(LoqRule::TenSd));
+        assert_eq!(LoqRule::parse("ml"), Ok(LoqRule::MinimumLevel));
+        assert_eq!(LoqRule::parse("factor:3.18"), Ok(LoqRule::Factor(3.18)));
+        assert_eq!(
+            LoqRule::parse("lowest-standard: 0.5"),
+            Ok(LoqRule::LowestStandard(0.5))
+        );
+        for bad in [
+            "factor:0",
+            "factor:-2",
+            "factor:inf",
+            "factor:NaN",
+            "factor:x",
+        ] {
+            let e = LoqRule::parse(bad).unwrap_err();
+            assert!(e.contains("not a positive number"), "{bad}: {e}");
+        }
+        assert!(
+            LoqRule::parse("tensd")
+                .unwrap_err()
+                .contains("not an LOQ rule")
+        );
+        assert!(
+            LoqRule::parse("mean:2")
+                .unwrap_err()
+                .contains("not an LOQ rule")
+        );
+        // The id is what the register note records, and it parses back.
+        for rule in [
+            LoqRule::TenSd,
+            LoqRule::MinimumLevel,
+            LoqRule::Factor(3.0),
+            LoqRule::LowestStandard(0.25),
+        ] {
+            assert_eq!(LoqRule::parse(&rule.id()), Ok(rule.clone()));
+        }
+        assert_eq!(LoqRule::Factor(3.0).id(), "factor:3");
+        assert_eq!(LoqRule::TenSd.describe(), "10 × S_s (ACS 1980)");
+        assert_eq!(LoqRule::Factor(3.0).describe(), "3 × MDL");
+        assert_eq!(
+            LoqRule::LowestStandard(0.25).describe(),
+            "lowest calibration standard (0.25)"
+        );
+        assert!(
+            LoqRule::MinimumLevel
+                .describe()
+                .starts_with("minimum level: 3.18")
+        );
+        assert_eq!(Governs::Spikes.name(), "MDL_S");
+        assert_eq!(Governs::Blanks.name(), "MDL_b");
+    }
+
+    #[test]
+    fn nearest_125_leaves_what_it_cannot_round() {
+        assert_eq!(nearest_125(-1.0), -1.0);
+        assert_eq!(nearest_125(0.0), 0.0);
+        assert!(nearest_125(f64::NAN).is_nan());
+        assert_eq!(nearest_125(f64::INFINITY), f64::INFINITY);
+    }
+
+    // Minimum level = 3.18 × MDL to the nearest 1, 2 or 5 × 10^n (EPA
+    // guidance, as given in the study issue); set 1 of Berthouex & Brown
+    // Example 14.1 (s = 0.324, t = 3.143) has an MDL of 1.02, so 3.24
+    // rounds to 2.
+    #[test]
+    fn minimum_level_loq_of_the_worked_example() {
+        let g = group(&SET_ONE, &[None; 7], &[], 3);
+        let opts = Options {
+            loq: LoqRule::MinimumLevel,
+            ..Options::default()
+        };
+        let r = compute(&g, &opts);
+        assert_eq!(format!("{:.2}", r.mdl), "1.02");
+        assert_eq!(r.loq, 2.0);
+        assert!(r.warnings.iter().all(|w| !w.contains("below the MDL")));
+    }
+
+    #[test]
+    fn an_loq_equal_to_the_mdl_stands_without_a_warning() {
+        let g = group(&SET_ONE, &[None; 7], &[], 3);
+        let mdl = compute(&g, &Options::default()).mdl;
+        let r = compute(
+            &g,
+            &Options {
+                loq: LoqRule::LowestStandard(mdl),
+                ..Options::default()
+            },
+        );
+        assert_eq!(r.loq, mdl);
+        assert!(
+            r.warnings.iter().all(|w| !w.contains("below the MDL")),
+            "{:?}",
+            r.warnings
+        );
+        // Below it: raised, and the warning gives the rule and the value.
+        let r = compute(
+            &g,
+            &Options {
+                loq: LoqRule::LowestStandard(0.5),
+                ..Options::default()
+            },
+        );
+        assert!(
+            r.warnings.contains(
+                &"the LOQ by lowest-standard:0.5 (0.5) is below the MDL; the LOQ is set to the MDL"
+                    .to_string()
+            ),
+            "{:?}",
+            r.warnings
+        );
+    }
+
+    #[test]
+    fn the_greater_mdl_governs_and_a_tie_stays_with_the_spikes() {
+        let mdl_s = compute(&group(&SET_ONE, &[None; 7], &[], 3), &Options::default()).mdl_s;
+        // Highest numeric blank (some blanks gave none) below MDL_S.
+        let low = [Some(0.2), Some(0.4), None, None, None, None, None];
+        let r = compute(&group(&SET_ONE, &low, &[], 3), &Options::default());
+        assert_eq!(r.mdl_b, Some(0.4));
+        assert_eq!((r.mdl, r.governs), (mdl_s, Governs::Spikes));
+        let tie = [Some(0.2), Some(mdl_s), None, None, None, None, None];
+        let r = compute(&group(&SET_ONE, &tie, &[], 3), &Options::default());
+        assert_eq!(r.mdl_b, Some(mdl_s));
+        assert_eq!(r.governs, Governs::Spikes);
+    }
+
+    #[test]
+    fn clean_spikes_on_three_dates_raise_no_design_warning() {
+        let r = compute(&group(&SET_ONE, &[None; 7], &[], 3), &Options::default());
+        assert!(r.ok());
+        assert!(r.warnings.is_empty(), "{:?}", r.warnings);
+        assert_eq!(r.spike_levels, vec![10.0]);
+        // A zero result is not above zero.
+        let mut zero = SET_ONE;
+        zero[0] = 0.0;
+        let r = compute(&group(&zero, &[None; 7], &[], 3), &Options::default());
+        assert!(
+            r.warnings
+                .iter()
+                .any(|w| w.starts_with("1 spike(s) gave no numeric result or a result ≤ 0")),
+            "{:?}",
+            r.warnings
+        );
+    }
+
+    #[test]
+    fn a_group_without_spikes_is_an_error_not_a_date_warning() {
+        let blanks = [0.1, 0.2, 0.1, 0.3, 0.2, 0.1, 0.2].map(Some);
+        let r = compute(&group(&[], &blanks, &[], 3), &Options::default());
+        assert!(!r.ok());
+        assert!(r.errors[0].starts_with("0 numeric spike result(s)"));
+        assert!(
+            r.warnings.iter().all(|w| !w.contains("date(s)")),
+            "{:?}",
+            r.warnings
+        );
+    }
+
+    #[test]
+    fn spike_levels_are_distinct_and_ascending() {
+        let mut g = group(&SET_ONE, &[None; 7], &[], 3);
+        let levels = [5.0, 2.0, 5.0, 2.0, 8.0, 2.0, 5.0];
+        for (row, level) in g.rows.iter_mut().zip(levels) {
+            row.spike_level = Some(level);
+        }
+        let r = compute(&g, &Options::default());
+        assert_eq!(r.spike_levels, vec![2.0, 5.0, 8.0]);
+    }
+
+    // Appendix B Rev. 2, section 2(a): spike at 2 to 10 times the MDL; the
+    // bounds themselves are inside.
+    #[test]
+    fn spike_levels_outside_two_to_ten_times_the_mdl() {
+        let w = spike_level_warnings(&[0.9, 1.0, 3.0, 5.0, 5.1], 0.5);
+        assert_eq!(
+            w,
+            vec![
+                "spike level 0.9 is outside 2–10 × the MDL (1 to 5)".to_string(),
+                "spike level 5.1 is outside 2–10 × the MDL (1 to 5)".to_string(),
+            ]
+        );
+        assert!(spike_level_warnings(&[1.0, 5.0], 0.5).is_empty());
+    }
+
+    #[test]
+    fn blank_rule_boundaries() {
+        // Exactly 100 blanks, all numeric: still mean + t × S_b; the
+        // percentile rule starts above 100.
+        let values: Vec<f64> = (1..=100).map(|i| i as f64 / 100.0).collect();
+        let b: Vec<Option<f64>> = values.iter().copied().map(Some).collect();
+        let r = compute(&group(&SET_ONE, &b, &[], 3), &Options::default());
+        assert!(
+            r.mdl_b_rule.starts_with("mean (0 if negative)"),
+            "{}",
+            r.mdl_b_rule
+        );
+        let expect = mean(&values) + t99(100) * sd(&values);
+        assert!((r.mdl_b.unwrap() - expect).abs() < 1e-12);
+        // Some blanks without a number: an SD only from two numeric ones.
+        let one = [Some(0.4), None, None, None, None, None, None];
+        let r = compute(&group(&SET_ONE, &one, &[], 3), &Options::default());
+        assert_eq!((r.mdl_b, r.sd_blank), (Some(0.4), None));
+        let three = [Some(0.4), Some(0.2), Some(0.3), None, None, None, None];
+        let r = compute(&group(&SET_ONE, &three, &[], 3), &Options::default());
+        assert_eq!(r.mdl_b, Some(0.4));
+        assert!((r.sd_blank.unwrap() - 0.1).abs() < 1e-12);
+    }
+
+    #[test]
+    fn reagent_blank_warning_only_when_there_are_some() {
+        let r = compute(&group(&SET_ONE, &[None; 7], &[], 3), &Options::default());
+        assert!(
+            r.warnings.iter().all(|w| !w.contains("reagent")),
+            "{:?}",
+            r.warnings
+        );
+        let r = compute(
+            &group(&SET_ONE, &[None; 7], &[0.01; 9], 3),
+            &Options::default(),
+        );
+        assert!(
+            r.warnings
+                .contains(&"9 numeric reagent blank(s): the IDL needs at least 10".to_string()),
+            "{:?}",
+            r.warnings
+        );
+    }
+
+    #[test]
+    fn an_exclusion_for_another_group_is_not_recorded() {
+        let g = group(&SET_ONE, &[None; 7], &[], 3);
+        let opts = Options {
+            exclusions: vec![("Spike-99".into(), "not in this group".into())],
+            ..Options::default()
+        };
+        let r = compute(&g, &opts);
+        assert!(r.excluded.is_empty());
+        assert_eq!(r.n_spike, 7);
+    }
 }
