@@ -200,3 +200,170 @@ pub fn groups(file: &str, rows: Vec<StudyRow>) -> Result<Vec<Group>, ReadError> 
     }
     Ok(out)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const HEAD: &str =
+        "analyte,matrix,method,kind,value,unit,prepared_on,analyzed_on,batch,spike_level,lab_id\n";
+
+    fn parse(body: &str) -> Result<Vec<StudyRow>, ReadError> {
+        parse_study("s.csv", format!("{HEAD}{body}").as_bytes())
+    }
+
+    fn err(body: &str) -> String {
+        parse(body).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn kinds_are_read_without_regard_to_case_or_spaces() {
+        let rows = parse(
+            "Pb,water,200.8,Spike,0.52,ug/L,2026-01-05,2026-01-06,B1,0.5,S1\n\
+             Pb,water,200.8, BLANK ,0.01,ug/L,,2026-01-06,B1,,B1\n\
+             Pb,water,200.8,reagent-blank,-0.02,ug/L,,2026-01-06,,,R1\n",
+        )
+        .unwrap();
+        let kinds: Vec<StudyKind> = rows.iter().map(|r| r.kind).collect();
+        assert_eq!(
+            kinds,
+            [StudyKind::Spike, StudyKind::Blank, StudyKind::ReagentBlank]
+        );
+        assert_eq!(rows[0].value, Some(0.52));
+        assert_eq!(rows[0].spike_level, Some(0.5));
+        assert_eq!(rows[0].prepared_on, NaiveDate::from_ymd_opt(2026, 1, 5));
+        assert_eq!(rows[0].line, 2);
+        assert_eq!(rows[0].batch, "B1");
+        // A negative blank is a result, not an error: Appendix B Rev. 2
+        // computes MDL_b from blank results as they are (from memory).
+        assert_eq!(rows[2].value, Some(-0.02));
+        assert_eq!(rows[2].line, 4);
+        assert_eq!(rows[1].prepared_on, None);
+    }
+
+    #[test]
+    fn empty_and_nd_results_have_no_value() {
+        let rows = parse(
+            "Pb,water,200.8,blank,,ug/L,,2026-01-06,,,B1\n\
+             Pb,water,200.8,blank,nd,ug/L,,2026-01-06,,,B2\n",
+        )
+        .unwrap();
+        assert_eq!(rows[0].value, None);
+        assert_eq!(rows[1].value, None);
+        let e = err("Pb,water,200.8,blank,trace,ug/L,,2026-01-06,,,B1\n");
+        assert!(e.starts_with("s.csv:2: field `value`"), "{e}");
+    }
+
+    #[test]
+    fn an_unknown_kind_names_its_cell() {
+        let e = parse("Pb,water,200.8,duplicate,0.5,ug/L,,2026-01-06,,,X1\n").unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "s.csv:2: field `kind`: unknown kind `duplicate`"
+        );
+        assert_eq!(e.hint(), "kinds: spike, blank, reagent-blank");
+    }
+
+    #[test]
+    fn a_lab_id_twice_for_one_analyte_is_refused() {
+        let e = err("Pb,water,200.8,blank,0.1,ug/L,,2026-01-06,,,B1\n\
+             Cd,water,200.8,blank,0.1,ug/L,,2026-01-06,,,B1\n\
+             pb,water,200.8,blank,0.2,ug/L,,2026-01-07,,,B1\n");
+        assert_eq!(
+            e,
+            "s.csv:4: field `lab_id`: B1 appears again for Pb (first on line 2)"
+        );
+        // One lab id carries several analytes: one digest, read for each.
+        assert_eq!(
+            parse(
+                "Pb,water,200.8,blank,0.1,ug/L,,2026-01-06,,,B1\n\
+                 Cd,water,200.8,blank,0.1,ug/L,,2026-01-06,,,B1\n"
+            )
+            .unwrap()
+            .len(),
+            2
+        );
+    }
+
+    #[test]
+    fn a_spike_needs_its_level_and_preparation_date() {
+        let e = err("Pb,water,200.8,spike,0.5,ug/L,2026-01-05,2026-01-06,,,S1\n");
+        assert_eq!(
+            e,
+            "s.csv:2: field `spike_level`: empty, but a spike needs its spike level"
+        );
+        let e = err("Pb,water,200.8,spike,0.5,ug/L,,2026-01-06,,0.5,S1\n");
+        assert_eq!(
+            e,
+            "s.csv:2: field `prepared_on`: empty, but a spike needs its preparation date"
+        );
+        // Blanks need neither.
+        assert!(parse("Pb,water,200.8,blank,0.1,ug/L,,2026-01-06,,,B1\n").is_ok());
+    }
+
+    #[test]
+    fn a_file_with_only_a_header_is_refused() {
+        let e = parse("").unwrap_err();
+        assert_eq!(e.to_string(), "s.csv: no replicate results");
+    }
+
+    #[test]
+    fn decimals_become_the_nearest_double() {
+        use std::str::FromStr;
+        let d = rust_decimal::Decimal::from_str("0.1").unwrap();
+        assert_eq!(to_f64(d), 0.1);
+        let d = rust_decimal::Decimal::from_str("-12.345").unwrap();
+        assert_eq!(to_f64(d), -12.345);
+    }
+
+    #[test]
+    fn groups_split_on_each_key_and_ignore_case() {
+        let rows = parse(
+            "Pb,water,200.8,blank,0.1,ug/L,,2026-01-06,,,1\n\
+             PB,Water,200.8,blank,0.1,ug/L,,2026-01-06,,,2\n\
+             Cd,water,200.8,blank,0.1,ug/L,,2026-01-06,,,3\n\
+             Pb,soil,200.8,blank,0.1,ug/L,,2026-01-06,,,4\n\
+             Pb,water,6020B,blank,0.1,ug/L,,2026-01-06,,,5\n\
+             Pb,water,200.8,blank,0.1,ug/L,,2026-01-06,,,6\n",
+        )
+        .unwrap();
+        let g = groups("s.csv", rows).unwrap();
+        let keys: Vec<(String, String, String, usize)> = g
+            .iter()
+            .map(|g| {
+                (
+                    g.analyte.clone(),
+                    g.matrix.clone(),
+                    g.method.clone(),
+                    g.rows.len(),
+                )
+            })
+            .collect();
+        let k = |a: &str, m: &str, me: &str, n: usize| {
+            (a.to_string(), m.to_string(), me.to_string(), n)
+        };
+        assert_eq!(
+            keys,
+            [
+                k("Pb", "water", "200.8", 3),
+                k("Cd", "water", "200.8", 1),
+                k("Pb", "soil", "200.8", 1),
+                k("Pb", "water", "6020B", 1),
+            ]
+        );
+    }
+
+    #[test]
+    fn a_group_in_two_units_is_refused_at_the_row() {
+        let rows = parse(
+            "Pb,water,200.8,blank,0.1,ug/L,,2026-01-06,,,1\n\
+             Cd,water,200.8,blank,0.1,mg/L,,2026-01-06,,,2\n\
+             Pb,water,200.8,blank,0.1,mg/L,,2026-01-06,,,3\n",
+        )
+        .unwrap();
+        let e = groups("s.csv", rows).unwrap_err();
+        let text = e.to_string();
+        assert!(text.starts_with("s.csv:4: field `unit`: "), "{text}");
+        assert!(text.contains("earlier rows are in"), "{text}");
+    }
+}

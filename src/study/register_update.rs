@@ -254,4 +254,247 @@ mod tests {
         assert_eq!(decimal_of(0.1 + 0.2).unwrap().to_string(), "0.3");
         assert_eq!(decimal_of(2.5e-7).unwrap().to_string(), "0.00000025");
     }
+
+    use crate::study::mdl::{Governs, LoqRule};
+    use crate::units::Unit;
+
+    const HEAD: &str = "analyte,matrix,method,unit,mdl,loq,effective_from,nominal_mass_g,nominal_volume_ml,upper_range,upper_range_unit,study_id,note,sd,n";
+
+    fn day(m: u32, d: u32) -> NaiveDate {
+        NaiveDate::from_ymd_opt(2026, m, d).unwrap()
+    }
+
+    fn result(analyte: &str, mdl: f64, loq: f64, sd: f64) -> MdlResult {
+        MdlResult {
+            analyte: analyte.into(),
+            matrix: "water".into(),
+            method: "200.8".into(),
+            unit: Unit::UgPerL,
+            spikes: vec![],
+            spike_levels: vec![],
+            n_spike: 8,
+            mean_spike: 0.0,
+            sd_spike: sd,
+            t_value: 2.998,
+            mdl_s: mdl,
+            blanks: vec![],
+            n_blank: 0,
+            n_blank_numeric: 0,
+            mean_blank: None,
+            sd_blank: None,
+            mdl_b: None,
+            mdl_b_rule: String::new(),
+            mdl,
+            governs: Governs::Spikes,
+            loq,
+            loq_rule: LoqRule::TenSd,
+            n_reagent: 0,
+            idl: None,
+            idl_factor: 3.0,
+            warnings: vec![],
+            errors: vec![],
+            excluded: vec![],
+        }
+    }
+
+    fn register(body: &str) -> Register {
+        Register::parse("limits.csv", format!("{HEAD}\n{body}").as_bytes()).unwrap()
+    }
+
+    struct Dir(std::path::PathBuf);
+    impl Dir {
+        fn new(name: &str) -> Dir {
+            let d = std::env::temp_dir().join(format!("limen-regup-{name}-{}", std::process::id()));
+            let _ = std::fs::remove_dir_all(&d);
+            std::fs::create_dir_all(&d).unwrap();
+            Dir(d)
+        }
+    }
+    impl Drop for Dir {
+        fn drop(&mut self) {
+            let _ = std::fs::remove_dir_all(&self.0);
+        }
+    }
+
+    #[test]
+    fn new_rows_round_up_and_carry_the_old_rows_preparation() {
+        let reg = register(
+            "Pb,water,200.8,µg/L,0.05,0.2,2025-01-01,,50,100,µg/L,S-2025,old,,\n\
+             Pb,water,200.8,µg/L,0.04,0.2,2027-01-01,,25,,,S-2027,future,,\n",
+        );
+        let mut failed = result("Cd", 0.1, 0.5, 0.03);
+        failed.errors.push("too few spikes".into());
+        let mut pb = result("Pb", 0.04112, 0.1372, 0.01372);
+        pb.excluded = vec![("S3".into(), "spilled".into())];
+        pb.governs = Governs::Blanks;
+        let rows = rows_for(&[failed, pb], &reg, day(6, 1), "S-2026", 2);
+        assert_eq!(rows.len(), 1, "a study with design errors adds nothing");
+        let r = &rows[0];
+        // Rounded towards +infinity: a limit is never understated.
+        assert_eq!(r.mdl.to_string(), "0.042");
+        assert_eq!(r.loq.to_string(), "0.14");
+        assert_eq!(r.sd.to_string(), "0.014");
+        assert_eq!(r.n, 8);
+        assert_eq!(r.unit, "µg/L");
+        assert_eq!(r.effective_from, day(6, 1));
+        // From the row in force on the new date, not the later one.
+        assert_eq!(r.nominal_mass_g, "");
+        assert_eq!(r.nominal_volume_ml, "50");
+        assert_eq!(r.upper_range, "100");
+        assert_eq!(r.upper_range_unit, "µg/L");
+        assert_eq!(r.study_id, "S-2026");
+        assert_eq!(
+            r.note,
+            "40 CFR 136 App. B Rev. 2: MDL_b governs; LOQ ten-sd; excluded S3: spilled"
+        );
+        assert_eq!(
+            r.describe(),
+            "Pb / water / 200.8: MDL 0.042 µg/L, LOQ 0.14 µg/L, in force from 2026-06-01 (S-2026)"
+        );
+    }
+
+    #[test]
+    fn a_new_analyte_has_empty_preparation_columns() {
+        let reg = register("Pb,water,200.8,µg/L,0.05,0.2,2025-01-01,,50,100,µg/L,S-2025,old,,\n");
+        let rows = rows_for(&[result("Cd", 0.02, 0.08, 0.007)], &reg, day(6, 1), "S", 3);
+        assert_eq!(rows[0].nominal_volume_ml, "");
+        assert_eq!(rows[0].upper_range, "");
+        assert_eq!(rows[0].upper_range_unit, "");
+        assert_eq!(rows[0].mdl.to_string(), "0.0200");
+        // A limit that is not a finite number gives no row.
+        let rows = rows_for(
+            &[result("Cd", f64::NAN, 0.08, 0.007)],
+            &reg,
+            day(6, 1),
+            "S",
+            3,
+        );
+        assert!(rows.is_empty());
+    }
+
+    fn write(dir: &Dir, text: &[u8]) -> std::path::PathBuf {
+        let p = dir.0.join("limits.csv");
+        std::fs::write(&p, text).unwrap();
+        p
+    }
+
+    #[test]
+    fn append_keeps_every_old_byte_and_adds_one_line_per_row() {
+        let dir = Dir::new("lf");
+        let old =
+            format!("{HEAD}\nPb,water,200.8,µg/L,0.05,0.2,2025-01-01,,50,,,S-2025,\"old, kept\",,");
+        let p = write(&dir, old.as_bytes());
+        let reg = Register::parse("limits.csv", old.as_bytes()).unwrap();
+        let rows = rows_for(
+            &[result("Pb", 0.04112, 0.1372, 0.01372)],
+            &reg,
+            day(6, 1),
+            "S-2026",
+            2,
+        );
+        let dropped = append(&p, &rows).unwrap();
+        assert!(dropped.is_empty());
+        let out = String::from_utf8(std::fs::read(&p).unwrap()).unwrap();
+        assert_eq!(
+            out,
+            format!(
+                "{old}\nPb,water,200.8,µg/L,0.042,0.14,2026-06-01,,50,,,S-2026,\
+                 40 CFR 136 App. B Rev. 2: MDL_S governs; LOQ ten-sd,0.014,8\n"
+            )
+        );
+        let again = Register::parse("limits.csv", out.as_bytes()).unwrap();
+        assert_eq!(again.rows.len(), 2);
+        // No temporary file left beside it.
+        assert_eq!(std::fs::read_dir(&dir.0).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn append_follows_crlf_a_bom_and_an_older_header() {
+        let dir = Dir::new("crlf");
+        let old = "\u{feff}analyte,matrix,method,unit,mdl,loq,effective_from,study_id,note\r\n\
+                   Pb,water,200.8,µg/L,0.05,0.2,2025-01-01,S-2025,old\r\n";
+        let p = write(&dir, old.as_bytes());
+        let rows = vec![NewRow {
+            analyte: "Cd".into(),
+            matrix: "water".into(),
+            method: "200.8".into(),
+            unit: "µg/L".into(),
+            mdl: Decimal::new(21, 3),
+            loq: Decimal::new(8, 2),
+            effective_from: day(6, 1),
+            nominal_mass_g: String::new(),
+            nominal_volume_ml: String::new(),
+            upper_range: String::new(),
+            upper_range_unit: String::new(),
+            study_id: "S-2026".into(),
+            note: "n".into(),
+            sd: Decimal::new(7, 3),
+            n: 8,
+        }];
+        assert_eq!(append(&p, &rows).unwrap(), ["sd", "n"]);
+        let out = String::from_utf8(std::fs::read(&p).unwrap()).unwrap();
+        assert_eq!(
+            out,
+            format!("{old}Cd,water,200.8,µg/L,0.021,0.08,2026-06-01,S-2026,n\r\n")
+        );
+    }
+
+    #[test]
+    fn append_refuses_a_second_row_for_one_key_and_date() {
+        let dir = Dir::new("dup");
+        let old = format!("{HEAD}\nPb,water,200.8,µg/L,0.05,0.2,2026-06-01,,,,,S-2025,old,,\n");
+        let p = write(&dir, old.as_bytes());
+        let reg = Register::parse("limits.csv", old.as_bytes()).unwrap();
+        let mut r = rows_for(&[result("Pb", 0.04, 0.1, 0.01)], &reg, day(6, 1), "S", 2);
+        r[0].analyte = "PB".into();
+        let e = append(&p, &r).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "limits.csv:2: field `effective_from`: PB / water / 200.8 already has a row in force from 2026-06-01"
+                .replace("limits.csv", &p.display().to_string())
+        );
+        assert!(e.hint().contains("--effective"));
+        assert_eq!(
+            std::fs::read(&p).unwrap(),
+            old.as_bytes(),
+            "nothing written"
+        );
+        // Another date for the same key is a new row.
+        r[0].effective_from = day(6, 2);
+        append(&p, &r).unwrap();
+    }
+
+    #[test]
+    fn append_needs_the_study_id_and_note_columns() {
+        let dir = Dir::new("cols");
+        let old = "analyte,matrix,method,unit,mdl,loq,effective_from,note\n";
+        let p = write(&dir, old.as_bytes());
+        let r = rows_for(
+            &[result("Pb", 0.04, 0.1, 0.01)],
+            &register(""),
+            day(6, 1),
+            "S",
+            2,
+        );
+        let e = append(&p, &r).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            format!(
+                "{}:1: field `study_id`: the register has no such column, so the study could not be recorded",
+                p.display()
+            )
+        );
+        assert_eq!(e.hint(), "add a `study_id` column to the register's header");
+        assert_eq!(std::fs::read(&p).unwrap(), old.as_bytes());
+    }
+
+    #[test]
+    fn a_write_error_names_the_folder() {
+        let e = UpdateError::Io {
+            path: "x/limits.csv".into(),
+            source: std::io::Error::other("denied"),
+        };
+        assert_eq!(e.to_string(), "x/limits.csv: cannot write: denied");
+        assert_eq!(e.hint(), "check that the register's folder is writable");
+    }
 }
