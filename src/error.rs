@@ -30,6 +30,9 @@ pub enum Error {
     Ledger(#[from] crate::ledger::LedgerError),
     #[error("{message}")]
     Usage { message: String, hint: String },
+    /// Release refused: who may authorise, or the review, is missing.
+    #[error("{message}; nothing was issued")]
+    Refused { message: String, hint: String },
     #[error("cannot write to standard output: {0}")]
     Stdout(std::io::Error),
     /// The reader of standard output went away; not reported, only the status.
@@ -58,7 +61,7 @@ impl Error {
             Error::Render(e) => e.hint(),
             Error::Template(e) => e.hint(),
             Error::Ledger(e) => e.hint(),
-            Error::Usage { hint, .. } => hint.clone(),
+            Error::Usage { hint, .. } | Error::Refused { hint, .. } => hint.clone(),
             Error::Stdout(_) => "check the disk or the file standard output goes to".into(),
             Error::BrokenPipe => String::new(),
         }
@@ -67,6 +70,7 @@ impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::BrokenPipe => EXIT_BROKEN_PIPE,
+            Error::Refused { .. } => EXIT_BLOCKED,
             _ => EXIT_INPUT,
         }
     }

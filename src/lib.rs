@@ -19,6 +19,7 @@ pub mod problem;
 pub mod qc;
 pub mod read;
 pub mod reissue;
+pub mod release;
 pub mod render;
 pub mod report;
 pub mod resolve;

@@ -1254,6 +1254,8 @@ mod tests {
                 format!("spec,analyte,matrix,limit,unit,effective_from\nL,Pb,,{spec_limit},mg/kg,2009-01-01\n").as_bytes(),
             )
             .unwrap(),
+            register_sha256: String::new(),
+            specs_sha256: String::new(),
         };
         let manifest = "batch='B'\nreport='R'\nclient_name='c'\nclient_address='a'\nclient_contact='p'\nreceived_on=2026-11-10\nresults='r.csv'\n";
         let batch = crate::read::Batch {

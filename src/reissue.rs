@@ -36,6 +36,11 @@ pub struct ReissueRequest<'a> {
     pub local_offset: String,
     pub templates: &'a crate::templates::Templates,
     pub fault: Option<Fault>,
+    /// The lab as it stands now: who may authorise the new revision, and
+    /// its review policy.
+    pub lab: &'a crate::read::Lab,
+    /// The authorising signatory's id (None: the lab's only one).
+    pub by: Option<&'a str>,
 }
 
 /// Recomputes a report's latest revision and, if anything changed (or
@@ -80,6 +85,14 @@ pub fn reissue(
         reason: req.reason.trim().to_string(),
         changed: changed.clone(),
     });
+    let release = crate::release::authorise(
+        req.lab,
+        &report,
+        req.by,
+        &ledger.reviews(req.report)?,
+        crate::release::Reviewed::After(&prev.issued_at),
+    )?;
+    crate::release::apply(&mut report, &release);
     let record = crate::issue::Record {
         rendered: None,
         snapshot: snapshot(&ws, &batch, &report),

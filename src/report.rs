@@ -39,6 +39,10 @@ pub struct Header {
     pub accreditation: Option<String>,
     pub signatory: String,
     pub signatory_role: String,
+    /// The id of the signatory who authorised release; empty until then.
+    pub authorised_by: String,
+    /// The review printed beside the authorisation, when there is one.
+    pub review: Option<ReviewMark>,
     pub decision_rule: DecisionRule,
     pub detection_power: crate::read::DetectionPower,
     pub compare: Compare,
@@ -50,6 +54,17 @@ pub struct Header {
     pub verification_code: Option<String>,
     /// Set on a re-issue: what this revision replaces, and why.
     pub replaces: Option<Replaces>,
+}
+
+/// Who reviewed the batch's inputs before release, and when (UTC, as
+/// recorded).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReviewMark {
+    pub by: String,
+    pub name: String,
+    pub role: String,
+    pub at: String,
+    pub note: String,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -169,6 +184,8 @@ pub fn evaluate<'a>(
         accreditation: lab.accreditation.clone(),
         signatory: lab.signatory.clone(),
         signatory_role: lab.signatory_role.clone(),
+        authorised_by: String::new(),
+        review: None,
         decision_rule: m.decision_rule.unwrap_or(lab.decision_rule),
         detection_power: lab.detection_power,
         compare: lab.compare,

@@ -412,6 +412,8 @@ mod tests {
             qc_text: None,
             register: Register::parse("limits.csv", limits.as_bytes()).unwrap(),
             specs: crate::read::Specs::parse("specs.csv", specs.as_bytes()).unwrap(),
+            register_sha256: String::new(),
+            specs_sha256: String::new(),
         }
     }
 

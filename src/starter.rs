@@ -55,8 +55,7 @@ const STARTER_LAB: &str = r#"# Your laboratory. Every key is described in the li
 name = "Your Laboratory Name"
 address = "Street, Town, Postcode"
 # accreditation = "Accreditation body and certificate number"
-signatory = "Name of the authorised signatory"
-signatory_role = "Technical Manager"
+# review = "required"          # or "independent": a review before release; default "optional"
 significant_figures = 3
 decision_rule = "simple"        # or "guarded" (ILAC-G8 guard band, needs uncertainty_pct)
 compare = "unrounded"           # or "reported"
@@ -65,6 +64,14 @@ page_size = "A4"                # or "Letter"
 
 [methods]
 "6010D" = "Acid digestion (EPA SW-846 3050B), ICP-OES (EPA SW-846 6010D)"
+
+# Each person who may authorise release (`limen issue --by ID`), and
+# within what: "*", a method ("6010D") or a method and a matrix ("6010D/paint").
+[[signatory]]
+id = "signatory-1"
+name = "Name of the authorised signatory"
+role = "Technical Manager"
+scope = "*"
 "#;
 
 const STARTER_LIMITS: &str = "analyte,matrix,method,unit,mdl,loq,effective_from,nominal_mass_g,nominal_volume_ml,upper_range,upper_range_unit,study_id,note

@@ -300,6 +300,8 @@ fn workspace_reader_in_memory(name: &str, file: &str, n: u32) {
                 lab,
                 register: limen::read::Register::parse("limits.csv", &texts[2])?,
                 specs: limen::read::Specs::parse("specs.csv", &texts[3])?,
+                register_sha256: limen::read::sha256_hex(&texts[2]),
+                specs_sha256: limen::read::sha256_hex(&texts[3]),
             };
             let manifest_text = text(4).map_err(|_| bad("batch.toml"))?;
             let manifest = limen::read::Manifest::parse("batch.toml", &manifest_text)?;
@@ -403,7 +405,14 @@ fn study_readers(n: u32) {
 fn ledger_and_verify(n: u32) {
     let t = TestDir::new("fuzz-ledger");
     t.demo_workspace("ws");
-    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    let r = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws/ceramics-2611-052",
+        "--out",
+        "out",
+    ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let ws_dir = t.path("ws");
     let ledger_path = ws_dir.join("ledger.sqlite");

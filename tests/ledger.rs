@@ -21,6 +21,8 @@ fn issued(name: &str) -> TestDir {
     t.demo_workspace("ws");
     let r = t.limen(&[
         "issue",
+        "--by",
+        "ivale",
         "ws/furniture-jewellery-2611-041",
         "ws/ceramics-2611-052",
         "--out",
@@ -69,6 +71,8 @@ fn impact_reissue_verify_and_history() {
         &t,
         &[
             "reissue",
+            "--by",
+            "ivale",
             "COA-2611-041",
             "--reason",
             "cadmium MDL corrected",
@@ -101,6 +105,8 @@ fn impact_reissue_verify_and_history() {
         &t,
         &[
             "reissue",
+            "--by",
+            "ivale",
             "COA-2611-041",
             "--reason",
             "again",
@@ -119,6 +125,8 @@ fn impact_reissue_verify_and_history() {
         &t,
         &[
             "reissue",
+            "--by",
+            "ivale",
             "COA-2611-041",
             "--reason",
             "contact name misspelt",
@@ -351,7 +359,7 @@ fn impact_since_a_date_looks_only_at_later_issues() {
     t.demo_workspace("ws");
     let at = |epoch: &str, batch: &str| {
         Command::new(env!("CARGO_BIN_EXE_limen"))
-            .args(["issue", batch, "--out", "out"])
+            .args(["issue", "--by", "ivale", batch, "--out", "out"])
             .current_dir(&t.root)
             .env("SOURCE_DATE_EPOCH", epoch)
             .output()
@@ -407,6 +415,8 @@ fn impact_matches_reissue(t: &TestDir, report: &str) -> Vec<String> {
         t,
         &[
             "reissue",
+            "--by",
+            "ivale",
             report,
             "--reason",
             "limit corrected",

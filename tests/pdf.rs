@@ -118,8 +118,22 @@ fn same_inputs_give_identical_bytes() {
     for w in ["ws1", "ws2", "ws3"] {
         t.demo_workspace(w);
     }
-    let a = t.limen(&["issue", "ws1/ceramics-2611-052", "--out", "a"]);
-    let b = t.limen(&["issue", "ws2/ceramics-2611-052", "--out", "b"]);
+    let a = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws1/ceramics-2611-052",
+        "--out",
+        "a",
+    ]);
+    let b = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws2/ceramics-2611-052",
+        "--out",
+        "b",
+    ]);
     assert_eq!((a.code, b.code), (0, 0), "{}{}", a.stderr, b.stderr);
     let (pa, pb) = (
         std::fs::read(t.path("a/COA-2611-052.pdf")).unwrap(),
@@ -134,6 +148,8 @@ fn same_inputs_give_identical_bytes() {
     // Two reports issued by one process are each reproducible too.
     let c = t.limen(&[
         "issue",
+        "--by",
+        "ivale",
         "ws3/furniture-jewellery-2611-041",
         "ws3/ceramics-2611-052",
         "--out",
@@ -194,7 +210,14 @@ fn characters_the_font_lacks_are_reported() {
         .read("ws/ceramics-2611-052/batch.toml")
         .replace("Marlow & Finch Home Imports Ltd", "Marlow & Finch 铅 Ltd");
     t.write("ws/ceramics-2611-052/batch.toml", batch);
-    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    let r = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws/ceramics-2611-052",
+        "--out",
+        "out",
+    ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(
         r.stderr
@@ -209,7 +232,14 @@ fn a_workspace_template_changes_the_wording() {
     let t = TestDir::new("pdf-template");
     t.demo_workspace("ws");
     t.write("ws/templates/title.hbs", "Test Report for {{client_name}}");
-    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    let r = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws/ceramics-2611-052",
+        "--out",
+        "out",
+    ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(
         pages(&t.path("out/COA-2611-052.pdf"))[0]
@@ -217,7 +247,14 @@ fn a_workspace_template_changes_the_wording() {
     );
     t.demo_workspace("ws2");
     t.write("ws2/templates/title.hbs", "Report for {{client}}");
-    let r = t.limen(&["issue", "ws2/ceramics-2611-052", "--out", "out2"]);
+    let r = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws2/ceramics-2611-052",
+        "--out",
+        "out2",
+    ]);
     assert_eq!(r.code, 2, "a missing variable is an error in strict mode");
     assert!(r.stderr.contains("title.hbs"), "{}", r.stderr);
     assert!(
@@ -234,7 +271,14 @@ fn page_size_comes_from_lab_toml() {
         .read("ws/lab.toml")
         .replace("page_size = \"A4\"", "page_size = \"Letter\"");
     t.write("ws/lab.toml", lab);
-    let r = t.limen(&["issue", "ws/ceramics-2611-052", "--out", "out"]);
+    let r = t.limen(&[
+        "issue",
+        "--by",
+        "ivale",
+        "ws/ceramics-2611-052",
+        "--out",
+        "out",
+    ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let info = Command::new("pdfinfo")
         .arg(t.path("out/COA-2611-052.pdf"))

@@ -21,6 +21,8 @@ fn workspace() -> Workspace {
         )
         .unwrap(),
         specs: Specs::parse("specs.csv", b"spec,analyte,limit,unit,effective_from\n").unwrap(),
+        register_sha256: String::new(),
+        specs_sha256: String::new(),
     }
 }
 

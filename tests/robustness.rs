@@ -46,6 +46,8 @@ fn workspace() -> Workspace {
             b"spec,analyte,matrix,limit,unit,effective_from\nP,Pb,,0.009,%,2009-01-01\n",
         )
         .unwrap(),
+        register_sha256: String::new(),
+        specs_sha256: String::new(),
     }
 }
 

@@ -101,6 +101,46 @@ fn issue_batches(
             println!("-> not issued: the batch is blocked, as a lab would hold it.\n");
             continue;
         }
+        // Reviewed by the senior analyst, authorised by the technical
+        // manager: the two-person release most labs run.
+        println!(
+            "$ limen review {} --by rokonjo",
+            ws_dir.join(name).display()
+        );
+        let inputs = limen::release::Inputs::of(ws, &batch);
+        let reviewer = ws
+            .lab
+            .signatories
+            .iter()
+            .find(|s| s.id == "rokonjo")
+            .ok_or_else(|| Error::Usage {
+                message: "the demo lab.toml has no signatory rokonjo".into(),
+                hint: "run the demo in a fresh folder".into(),
+            })?;
+        ledger.record_review(&limen::ledger::Review {
+            report: report.header.report.clone(),
+            batch: report.header.batch.clone(),
+            batch_dir: batch.dir.display().to_string(),
+            reviewer: reviewer.id.clone(),
+            reviewer_name: reviewer.name.clone(),
+            reviewer_role: reviewer.role.clone(),
+            reviewed_at: run.issued_at.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
+            note: "raw data, calculations and QC checked".into(),
+            inputs: inputs.text(),
+        })?;
+        println!(
+            "$ limen issue {} --by ivale --out {}",
+            ws_dir.join(name).display(),
+            reports_dir.display()
+        );
+        let release = limen::release::authorise(
+            &ws.lab,
+            &report,
+            Some("ivale"),
+            &ledger.reviews(&report.header.report)?,
+            limen::release::Reviewed::Of(&inputs),
+        )?;
+        limen::release::apply(&mut report, &release);
         let record = Record {
             rendered: None,
             snapshot: snapshot(ws, &batch, &report),
@@ -207,7 +247,7 @@ fn impact_and_reissue(
     let mut reissued = Vec::new();
     for i in &affected {
         println!(
-            "$ limen reissue {} --reason \"{reason}\" --out {}\n",
+            "$ limen reissue {} --reason \"{reason}\" --by ivale --out {}\n",
             i.issued.report,
             reports_dir.display()
         );
@@ -219,6 +259,8 @@ fn impact_and_reissue(
             local_offset: ws.lab.utc_offset.to_string(),
             templates,
             fault: None,
+            lab: &ws.lab,
+            by: Some("ivale"),
         };
         if let Reissued::Issued {
             revision,

@@ -18,11 +18,16 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut text = format!("{}\n", a.report);
     for r in &revisions {
         text.push_str(&format!(
-            "  revision {}  issued {} ({})  by {}  limen {}  {} result(s) changed{}\n",
+            "  revision {}  issued {} ({})  by {}{}  limen {}  {} result(s) changed{}\n",
             r.revision,
             r.issued_at,
             r.local_offset,
             r.signatory,
+            if r.reviewed_by.is_empty() {
+                String::new()
+            } else {
+                format!("  reviewed by {} at {}", r.reviewed_by, r.reviewed_at)
+            },
             r.tool_version,
             r.changed_count,
             if r.reason.is_empty() {

@@ -22,6 +22,10 @@ pub struct Args {
     /// and every held result is qualified qc-exception.
     #[arg(long, value_name = "REASON")]
     accept_qc: Option<String>,
+    /// The signatory (an id from lab.toml's [[signatory]]) who authorises
+    /// release; needed when the lab has more than one.
+    #[arg(long, value_name = "ID")]
+    by: Option<String>,
 }
 
 pub fn run(a: Args) -> Result<i32, Error> {
@@ -56,14 +60,31 @@ pub fn run(a: Args) -> Result<i32, Error> {
             ledger,
         });
     }
-    let jobs = reports
-        .into_iter()
-        .map(|(report, batch, site)| Job {
+    // Every release is authorised before anything is written.
+    let mut jobs = Vec::with_capacity(reports.len());
+    for (mut report, batch, site) in reports {
+        let s = &sites[site];
+        let release = limen::release::authorise(
+            &s.ws.lab,
+            &report,
+            a.by.as_deref(),
+            &s.ledger.reviews(&report.header.report)?,
+            limen::release::Reviewed::Of(&limen::release::Inputs::of(s.ws, &batch)),
+        )
+        .map_err(|r| {
+            let mut e: Error = r.into();
+            if let Error::Refused { message, .. } = &mut e {
+                *message = format!("{}: {message}", report.header.report);
+            }
+            e
+        })?;
+        limen::release::apply(&mut report, &release);
+        jobs.push(Job {
             report,
             batch,
             site,
-        })
-        .collect();
+        });
+    }
     let issued = issue_all(&mut sites, &a.out, jobs, fault, &mut |e| match e {
         Event::Swept(name) => eprintln!(
             "note: removed {name}, left in {} by an interrupted run",
@@ -158,6 +179,7 @@ fn evaluate(a: &Args, run: &limen::RunInfo, progress: &Progress) -> Result<Evalu
             Some(k) => k,
             None => {
                 let ws = Workspace::load(&root)?;
+                super::old_signatory_note(&ws);
                 let t = Templates::load(Some(&ws.root))?;
                 workspaces.push((root, ws, t));
                 workspaces.len() - 1

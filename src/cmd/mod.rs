@@ -12,6 +12,7 @@ mod impact;
 mod init;
 mod issue;
 mod reissue;
+mod review;
 mod study;
 mod verify;
 
@@ -35,6 +36,8 @@ struct Cli {
 enum Command {
     /// Evaluate a batch and show every client result and what blocks it.
     Check(check::Args),
+    /// Record that a signatory reviewed a batch's exact inputs before release.
+    Review(review::Args),
     /// Issue the report files for one or more batches.
     Issue(issue::Args),
     /// Re-issue a report as a new revision after a limit or detail changes.
@@ -57,6 +60,7 @@ pub fn run() -> i32 {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Check(a) => check::run(a),
+        Command::Review(a) => review::run(a),
         Command::Issue(a) => issue::run(a),
         Command::Init(a) => init::run(a),
         Command::Reissue(a) => reissue::run(*a),
@@ -109,6 +113,17 @@ pub fn ledger_workspace(
         eprintln!("note: {n}");
     }
     Ok((ws, ledger))
+}
+
+/// The older single `signatory = "..."` still works; say once that the
+/// tables replace it.
+pub fn old_signatory_note(ws: &Workspace) {
+    if ws.lab.signatory_is_old_form {
+        eprintln!(
+            "note: {}: `signatory = \"...\"` is the older form; list each person who may authorise as [[signatory]] with id, name, role and scope",
+            ws.root.join("lab.toml").display()
+        );
+    }
 }
 
 /// Now, or SOURCE_DATE_EPOCH when set, so builds of a report reproduce.

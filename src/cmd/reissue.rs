@@ -34,6 +34,10 @@ pub struct Args {
     /// Re-issue even when no result changes.
     #[arg(long)]
     force: bool,
+    /// The signatory (an id from lab.toml's [[signatory]]) who authorises
+    /// the new revision; needed when the lab has more than one.
+    #[arg(long, value_name = "ID")]
+    by: Option<String>,
 }
 
 fn text(path: &Option<PathBuf>) -> Result<Option<String>, Error> {
@@ -53,6 +57,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     }
     let run = run_info()?;
     let (ws, mut ledger) = super::ledger_workspace(a.workspace.as_deref())?;
+    super::old_signatory_note(&ws);
     let register = match &a.limits {
         Some(p) => Register::parse(&p.display().to_string(), &read_file(p)?)?,
         None => ws.register.clone(),
@@ -84,6 +89,8 @@ pub fn run(a: Args) -> Result<i32, Error> {
         local_offset: ws.lab.utc_offset.to_string(),
         templates: &templates,
         fault: super::fault()?,
+        lab: &ws.lab,
+        by: a.by.as_deref(),
     };
     let outcome = reissue(&mut ledger, &against, &req, &run)?;
     tell(&a.report, outcome)

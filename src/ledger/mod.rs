@@ -9,7 +9,7 @@ use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 
 /// The schema this build writes; older ledgers are migrated forward.
-pub const SCHEMA_VERSION: i64 = 2;
+pub const SCHEMA_VERSION: i64 = 3;
 
 const MIGRATIONS: &[&str] = &[
     // 0 -> 1
@@ -67,7 +67,42 @@ const MIGRATIONS: &[&str] = &[
     ALTER TABLE results ADD COLUMN uncertainty TEXT;
     ALTER TABLE results ADD COLUMN ld TEXT;
     ALTER TABLE results ADD COLUMN beta TEXT;",
+    // 2 -> 3: who authorised release and who reviewed; the reviews
+    // themselves, each with the SHA-256 of every input it saw.
+    "ALTER TABLE reports ADD COLUMN authorised_by TEXT NOT NULL DEFAULT '';
+    ALTER TABLE reports ADD COLUMN reviewed_by TEXT NOT NULL DEFAULT '';
+    ALTER TABLE reports ADD COLUMN reviewed_at TEXT NOT NULL DEFAULT '';
+    CREATE TABLE reviews (
+        id INTEGER PRIMARY KEY,
+        report TEXT NOT NULL,
+        batch TEXT NOT NULL,
+        batch_dir TEXT NOT NULL,
+        reviewer TEXT NOT NULL,
+        reviewer_name TEXT NOT NULL,
+        reviewer_role TEXT NOT NULL,
+        reviewed_at TEXT NOT NULL,
+        note TEXT NOT NULL DEFAULT '',
+        inputs TEXT NOT NULL
+    );
+    CREATE INDEX reviews_report ON reviews(report);",
 ];
+
+/// A review of a batch's inputs, as recorded by `limen review`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Review {
+    pub report: String,
+    pub batch: String,
+    pub batch_dir: String,
+    /// The reviewer's signatory id, name and role.
+    pub reviewer: String,
+    pub reviewer_name: String,
+    pub reviewer_role: String,
+    /// UTC, `YYYY-MM-DDTHH:MM:SSZ`.
+    pub reviewed_at: String,
+    pub note: String,
+    /// One `name sha256` line per input file.
+    pub inputs: String,
+}
 
 #[derive(Debug, thiserror::Error)]
 pub enum LedgerError {
@@ -209,6 +244,11 @@ pub struct Issued {
     pub reason: String,
     pub changed: String,
     pub changed_count: i64,
+    /// Signatory id; empty in records from before authorised release.
+    pub authorised_by: String,
+    /// The reviewer's name and the review's time; empty when none.
+    pub reviewed_by: String,
+    pub reviewed_at: String,
 }
 
 pub struct NewFile {
@@ -233,7 +273,7 @@ pub struct Ledger {
     path: String,
 }
 
-const ISSUED_COLUMNS: &str = "id, report, revision, issued_at, local_offset, signatory, tool_version, reason, changed, changed_count";
+const ISSUED_COLUMNS: &str = "id, report, revision, issued_at, local_offset, signatory, tool_version, reason, changed, changed_count, authorised_by, reviewed_by, reviewed_at";
 
 fn issued(row: &rusqlite::Row<'_>) -> rusqlite::Result<Issued> {
     Ok(Issued {
@@ -247,6 +287,9 @@ fn issued(row: &rusqlite::Row<'_>) -> rusqlite::Result<Issued> {
         reason: row.get(7)?,
         changed: row.get(8)?,
         changed_count: row.get(9)?,
+        authorised_by: row.get(10)?,
+        reviewed_by: row.get(11)?,
+        reviewed_at: row.get(12)?,
     })
 }
 
@@ -502,7 +545,7 @@ impl Ledger {
                     cols.join(", ")
                 ),
                 [sha],
-                |row| Ok((issued(row)?, row.get(10)?)),
+                |row| Ok((issued(row)?, row.get(13)?)),
             )
             .optional()
             .map_err(self.sql())
@@ -539,8 +582,8 @@ impl Ledger {
         tx.execute(
             "INSERT INTO reports (report, revision, status, issued_at, local_offset, signatory, tool_version, reason, changed,
                changed_count, out_dir, batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows,
-               owner_pid)
-             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19)",
+               owner_pid, authorised_by, reviewed_by, reviewed_at)
+             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22)",
             params![
                 h.report,
                 h.revision,
@@ -561,6 +604,9 @@ impl Ledger {
                 s.limits_rows,
                 s.spec_rows,
                 std::process::id() as i64,
+                h.authorised_by,
+                h.review.as_ref().map(|r| r.name.as_str()).unwrap_or(""),
+                h.review.as_ref().map(|r| r.at.as_str()).unwrap_or(""),
             ],
         )
         .map_err(err)?;
@@ -611,6 +657,55 @@ impl Ledger {
         }
         tx.commit().map_err(err)?;
         Ok(id)
+    }
+
+    /// Records a review, in one transaction.
+    pub fn record_review(&mut self, r: &Review) -> Result<(), LedgerError> {
+        self.conn
+            .execute(
+                "INSERT INTO reviews (report, batch, batch_dir, reviewer, reviewer_name, reviewer_role, reviewed_at, note, inputs)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+                params![
+                    r.report,
+                    r.batch,
+                    r.batch_dir,
+                    r.reviewer,
+                    r.reviewer_name,
+                    r.reviewer_role,
+                    r.reviewed_at,
+                    r.note,
+                    r.inputs
+                ],
+            )
+            .map(|_| ())
+            .map_err(self.sql())
+    }
+
+    /// The reviews of a report number, newest first.
+    pub fn reviews(&self, report: &str) -> Result<Vec<Review>, LedgerError> {
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT report, batch, batch_dir, reviewer, reviewer_name, reviewer_role, reviewed_at, note, inputs
+                 FROM reviews WHERE report = ?1 ORDER BY id DESC",
+            )
+            .map_err(self.sql())?;
+        st.query_map([report], |r| {
+            Ok(Review {
+                report: r.get(0)?,
+                batch: r.get(1)?,
+                batch_dir: r.get(2)?,
+                reviewer: r.get(3)?,
+                reviewer_name: r.get(4)?,
+                reviewer_role: r.get(5)?,
+                reviewed_at: r.get(6)?,
+                note: r.get(7)?,
+                inputs: r.get(8)?,
+            })
+        })
+        .map_err(self.sql())?
+        .collect::<Result<_, _>>()
+        .map_err(self.sql())
     }
 
     /// Drops a pending issue whose files could not be put in place.

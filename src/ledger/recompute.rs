@@ -88,6 +88,9 @@ pub fn recompute(
         lab,
         register: against.register.clone(),
         specs: against.specs.clone(),
+        // A re-issue is computed from parsed rows, not from these files.
+        register_sha256: String::new(),
+        specs_sha256: String::new(),
     };
     let manifest_text = against.manifest.unwrap_or(&snap.batch_toml).to_string();
     let manifest_file = format!("{report_id} (as issued): batch.toml");

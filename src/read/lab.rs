@@ -31,8 +31,10 @@ struct LabFile {
     name: String,
     address: String,
     accreditation: Option<String>,
-    signatory: String,
+    /// `[[signatory]]` tables, or (the older form) one name.
+    signatory: toml::Spanned<toml::Value>,
     signatory_role: Option<String>,
+    review: Option<ReviewPolicy>,
     significant_figures: Option<u32>,
     decision_rule: Option<DecisionRule>,
     compare: Option<Compare>,
@@ -84,13 +86,115 @@ impl Default for DetectionPower {
     }
 }
 
+/// Whether a batch must be reviewed before it is released.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReviewPolicy {
+    /// A review is recorded and printed when there is one.
+    #[default]
+    Optional,
+    /// Release needs a review of the batch's current inputs.
+    Required,
+    /// As `Required`, by someone other than the person who authorises.
+    Independent,
+}
+
+impl ReviewPolicy {
+    pub fn name(self) -> &'static str {
+        match self {
+            ReviewPolicy::Optional => "optional",
+            ReviewPolicy::Required => "required",
+            ReviewPolicy::Independent => "independent",
+        }
+    }
+}
+
+/// A person who may authorise release (ISO/IEC 17025:2017, 6.2.6), and
+/// within what.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Signatory {
+    pub id: String,
+    pub name: String,
+    pub role: String,
+    pub scope: Vec<ScopeEntry>,
+}
+
+/// One entry of a signatory's scope: a method and a matrix, either of
+/// which may be any (`*`).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ScopeEntry {
+    pub method: Option<String>,
+    pub matrix: Option<String>,
+}
+
+impl ScopeEntry {
+    /// `*`, `METHOD`, `METHOD/MATRIX`, `*/MATRIX` or `METHOD/*`.
+    pub fn parse(text: &str) -> Option<ScopeEntry> {
+        let t = text.trim();
+        let (method, matrix) = match t.split_once('/') {
+            Some((a, b)) => (a.trim(), b.trim()),
+            None => (t, "*"),
+        };
+        let part = |p: &str| -> Option<Option<String>> {
+            match p {
+                "" => None,
+                "*" => Some(None),
+                p if p.contains(['*', '/']) => None,
+                p => Some(Some(p.to_string())),
+            }
+        };
+        Some(ScopeEntry {
+            method: part(method)?,
+            matrix: part(matrix)?,
+        })
+    }
+
+    pub fn covers(&self, method: &str, matrix: &str) -> bool {
+        let ok = |want: &Option<String>, have: &str| {
+            want.as_deref().is_none_or(|w| w.eq_ignore_ascii_case(have))
+        };
+        ok(&self.method, method) && ok(&self.matrix, matrix)
+    }
+}
+
+impl std::fmt::Display for ScopeEntry {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match (&self.method, &self.matrix) {
+            (None, None) => write!(f, "*"),
+            (Some(m), None) => write!(f, "{m}"),
+            (m, Some(x)) => write!(f, "{}/{x}", m.as_deref().unwrap_or("*")),
+        }
+    }
+}
+
+impl Signatory {
+    pub fn covers(&self, method: &str, matrix: &str) -> bool {
+        self.scope.iter().any(|e| e.covers(method, matrix))
+    }
+
+    pub fn scope_text(&self) -> String {
+        self.scope
+            .iter()
+            .map(|e| e.to_string())
+            .collect::<Vec<_>>()
+            .join(", ")
+    }
+}
+
 #[derive(Debug, Clone)]
 pub struct Lab {
     pub name: String,
     pub address: String,
     pub accreditation: Option<String>,
+    /// The first signatory's name and role: what a report names until
+    /// someone authorises it.
     pub signatory: String,
     pub signatory_role: String,
+    /// Everyone who may authorise release, in file order.
+    pub signatories: Vec<Signatory>,
+    /// Set when lab.toml names its signatory the older way (`signatory = "..."`).
+    pub signatory_is_old_form: bool,
+    pub review: ReviewPolicy,
     pub significant_figures: u32,
     pub decision_rule: DecisionRule,
     pub compare: Compare,
@@ -155,6 +259,8 @@ impl Lab {
             )
         })?;
         let detection_power = detection_power(file, text, f.detection_power.as_ref())?;
+        let signatory_is_old_form = f.signatory.get_ref().is_str();
+        let signatories = signatories(file, text, &f.signatory, f.signatory_role.as_deref())?;
         Ok(Lab {
             detection_power,
             utc_offset,
@@ -163,10 +269,11 @@ impl Lab {
             name: f.name,
             address: f.address,
             accreditation: f.accreditation.filter(|a| !a.trim().is_empty()),
-            signatory: f.signatory,
-            signatory_role: f
-                .signatory_role
-                .unwrap_or_else(|| "Authorised signatory".into()),
+            signatory: signatories[0].name.clone(),
+            signatory_role: signatories[0].role.clone(),
+            signatories,
+            signatory_is_old_form,
+            review: f.review.unwrap_or_default(),
             significant_figures,
             decision_rule: f.decision_rule.unwrap_or(DecisionRule::Simple),
             compare: f.compare.unwrap_or(Compare::Unrounded),
@@ -175,6 +282,162 @@ impl Lab {
             methods: f.methods,
         })
     }
+}
+
+const DEFAULT_ROLE: &str = "Authorised signatory";
+
+/// The signatories: `[[signatory]]` tables with id, name, role and scope,
+/// or the older single name (with `signatory_role`), which becomes one
+/// signatory of id `default` and scope `*`.
+fn signatories(
+    file: &str,
+    text: &str,
+    value: &toml::Spanned<toml::Value>,
+    old_role: Option<&str>,
+) -> Result<Vec<Signatory>, ReadError> {
+    use toml::Value;
+    let at_line = |line: u64, field: &str| super::Loc::new(file, line, field);
+    let start = super::toml_util::line_at(text, value.span().start);
+    let tables = match value.get_ref() {
+        Value::String(name) => {
+            if name.trim().is_empty() {
+                return Err(ReadError::field(
+                    at_line(start, "signatory"),
+                    "empty",
+                    "name the person who authorises release",
+                ));
+            }
+            return Ok(vec![Signatory {
+                id: "default".into(),
+                name: name.clone(),
+                role: old_role.unwrap_or(DEFAULT_ROLE).to_string(),
+                scope: vec![ScopeEntry {
+                    method: None,
+                    matrix: None,
+                }],
+            }]);
+        }
+        Value::Array(items) if !items.is_empty() => items,
+        _ => {
+            return Err(ReadError::field(
+                at_line(start, "signatory"),
+                "needs one or more [[signatory]] tables",
+                "give each person who may authorise release as [[signatory]] with id, name, role and scope",
+            ));
+        }
+    };
+    if old_role.is_some() {
+        return Err(ReadError::field(
+            at_line(start, "signatory_role"),
+            "given beside [[signatory]] tables",
+            "give each signatory's role as `role` in its own table",
+        ));
+    }
+    // Each table's errors point at its own [[signatory]] header.
+    let headers: Vec<u64> = text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| l.trim_start().starts_with("[[signatory]]"))
+        .map(|(i, _)| i as u64 + 1)
+        .collect();
+    let mut out: Vec<Signatory> = Vec::new();
+    for (i, item) in tables.iter().enumerate() {
+        let line = headers.get(i).copied().unwrap_or(start);
+        let Some(t) = item.as_table() else {
+            return Err(ReadError::field(
+                at_line(line, "signatory"),
+                "not a table",
+                "write each signatory as a [[signatory]] table",
+            ));
+        };
+        if let Some(k) = t
+            .keys()
+            .find(|k| !["id", "name", "role", "scope"].contains(&k.as_str()))
+        {
+            return Err(ReadError::field(
+                at_line(line, k),
+                "unknown key in a [[signatory]] table",
+                "a signatory has id, name, role and scope",
+            ));
+        }
+        let text_of = |key: &str| -> Result<String, ReadError> {
+            match t.get(key).and_then(Value::as_str).map(str::trim) {
+                Some(v) if !v.is_empty() => Ok(v.to_string()),
+                _ => Err(ReadError::field(
+                    at_line(line, key),
+                    "missing or empty in this [[signatory]] table",
+                    match key {
+                        "id" => "give a short id without spaces, used as `--by ID`",
+                        _ => "give the person's name as it is to be printed",
+                    },
+                )),
+            }
+        };
+        let id = text_of("id")?;
+        if id.chars().any(char::is_whitespace) {
+            return Err(ReadError::field(
+                at_line(line, "id"),
+                format!("`{id}` contains a space"),
+                "give a short id without spaces, used as `--by ID`",
+            ));
+        }
+        if let Some(j) = out.iter().position(|s| s.id.eq_ignore_ascii_case(&id)) {
+            return Err(ReadError::field(
+                at_line(line, "id"),
+                format!("`{id}` is used by signatory {} already", j + 1),
+                "give each signatory an id of their own",
+            ));
+        }
+        let name = text_of("name")?;
+        let role = match t.get("role") {
+            None => DEFAULT_ROLE.to_string(),
+            Some(_) => text_of("role")?,
+        };
+        let scope_hint = "list what the person may authorise: \"*\" for everything, or entries such as \"6010D\" (a method) or \"6020B/ceramic-leachate\" (a method and a matrix)";
+        let entries: Vec<&str> = match t.get("scope") {
+            Some(Value::String(s)) => vec![s.as_str()],
+            Some(Value::Array(a)) if !a.is_empty() => {
+                let mut v = Vec::new();
+                for e in a {
+                    match e.as_str() {
+                        Some(s) => v.push(s),
+                        None => {
+                            return Err(ReadError::field(
+                                at_line(line, "scope"),
+                                "every entry must be text",
+                                scope_hint,
+                            ));
+                        }
+                    }
+                }
+                v
+            }
+            _ => {
+                return Err(ReadError::field(
+                    at_line(line, "scope"),
+                    "missing or empty in this [[signatory]] table",
+                    scope_hint,
+                ));
+            }
+        };
+        let mut scope = Vec::new();
+        for e in entries {
+            scope.push(ScopeEntry::parse(e).ok_or_else(|| {
+                ReadError::field(
+                    at_line(line, "scope"),
+                    format!("`{e}` is not a scope entry"),
+                    scope_hint,
+                )
+            })?);
+        }
+        out.push(Signatory {
+            id,
+            name,
+            role,
+            scope,
+        });
+    }
+    Ok(out)
 }
 
 fn detection_power(

@@ -14,7 +14,10 @@ pub mod vocab;
 
 pub use batch::{Batch, Manifest, ResultRow};
 pub use error::{Loc, ReadError};
-pub use lab::{Compare, DetectionPower, Lab, NotDetectedStyle, PageSize, WeakPass};
+pub use lab::{
+    Compare, DetectionPower, Lab, NotDetectedStyle, PageSize, ReviewPolicy, ScopeEntry, Signatory,
+    WeakPass,
+};
 pub use register::{InForce, LimitRow, Register};
 pub use specs::{SpecLookup, SpecRow, Specs};
 pub use vocab::{DecisionRule, Kind};
@@ -31,6 +34,19 @@ pub struct Workspace {
     pub lab: Lab,
     pub register: Register,
     pub specs: Specs,
+    /// The SHA-256 of limits.csv and specs.csv as read, for a review to
+    /// name the exact inputs it saw.
+    pub register_sha256: String,
+    pub specs_sha256: String,
+}
+
+/// Lower-case hex SHA-256.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::Digest;
+    sha2::Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
 }
 
 impl Workspace {
@@ -65,16 +81,14 @@ impl Workspace {
             qc_text.as_deref().map(|t| (qc_file.as_str(), t)),
         )?;
         let limits = root.join("limits.csv");
-        let register = Register::parse(
-            &limits.display().to_string(),
-            &csvtable::read_file(&limits)?,
-        )?;
+        let limits_bytes = csvtable::read_file(&limits)?;
+        let register = Register::parse(&limits.display().to_string(), &limits_bytes)?;
         let specs_path = root.join("specs.csv");
-        let specs = Specs::parse(
-            &specs_path.display().to_string(),
-            &csvtable::read_file(&specs_path)?,
-        )?;
+        let specs_bytes = csvtable::read_file(&specs_path)?;
+        let specs = Specs::parse(&specs_path.display().to_string(), &specs_bytes)?;
         Ok(Workspace {
+            register_sha256: sha256_hex(&limits_bytes),
+            specs_sha256: sha256_hex(&specs_bytes),
             root: root.to_path_buf(),
             lab_text,
             qc_text,

@@ -688,6 +688,11 @@ mod tests {
         assert_eq!(format!("{:.2}", r.mdl), "1.02");
         assert_eq!(r.loq, 2.0);
         assert!(r.warnings.iter().all(|w| !w.contains("below the MDL")));
+        // Set 2 (s = 0.40, MDL 1.26): 3.18 × 1.26 = 4.0 rounds to 5.
+        let g = group(&[1.6, 1.9, 1.3, 1.7, 2.1, 0.9, 1.8], &[None; 7], &[], 3);
+        let r = compute(&g, &opts);
+        assert_eq!(format!("{:.2}", r.mdl), "1.26");
+        assert_eq!(r.loq, 5.0);
     }
 
     #[test]

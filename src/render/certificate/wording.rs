@@ -18,6 +18,10 @@ pub struct Context {
     accreditation: String,
     signatory: String,
     signatory_role: String,
+    /// The review before release; all empty when none was recorded.
+    reviewer: String,
+    reviewer_role: String,
+    reviewed_on: String,
     report: String,
     revision: u32,
     batch: String,
@@ -109,6 +113,26 @@ pub fn context(report: &Report) -> Context {
         accreditation: h.accreditation.clone().unwrap_or_default(),
         signatory: h.signatory.clone(),
         signatory_role: h.signatory_role.clone(),
+        reviewer: h
+            .review
+            .as_ref()
+            .map(|r| r.name.clone())
+            .unwrap_or_default(),
+        reviewer_role: h
+            .review
+            .as_ref()
+            .map(|r| r.role.clone())
+            .unwrap_or_default(),
+        reviewed_on: h
+            .review
+            .as_ref()
+            .and_then(|r| chrono::DateTime::parse_from_rfc3339(&r.at).ok())
+            .map(|t| {
+                t.with_timezone(&h.utc_offset)
+                    .format("%Y-%m-%d")
+                    .to_string()
+            })
+            .unwrap_or_default(),
         report: h.report.clone(),
         revision: h.revision,
         batch: h.batch.clone(),
