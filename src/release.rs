@@ -291,3 +291,67 @@ pub fn apply(report: &mut Report, release: &Release) {
     h.authorised_by = release.signatory.id.clone();
     h.review = release.review.clone();
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn inputs(pairs: &[(&str, &str)]) -> Inputs {
+        Inputs(
+            pairs
+                .iter()
+                .map(|(n, s)| (n.to_string(), s.to_string()))
+                .collect(),
+        )
+    }
+
+    #[test]
+    fn inputs_round_trip_through_their_text() {
+        let i = inputs(&[("lab.toml", "aa"), ("results.csv", "bb")]);
+        assert_eq!(i.text(), "lab.toml aa\nresults.csv bb\n");
+        assert_eq!(Inputs::parse(&i.text()), i);
+    }
+
+    #[test]
+    fn changed_inputs_are_named_added_and_removed_included() {
+        let before = inputs(&[("lab.toml", "aa"), ("limits.csv", "bb"), ("r.csv", "cc")]);
+        let after = inputs(&[("lab.toml", "aa"), ("limits.csv", "b2"), ("qc.toml", "dd")]);
+        assert_eq!(
+            after.changed_since(&before),
+            ["limits.csv", "qc.toml", "r.csv"]
+        );
+        assert!(before.changed_since(&before).is_empty());
+    }
+
+    #[test]
+    fn refusals_say_what_is_missing() {
+        let r = Refusal::OutOfScope {
+            id: "rokonjo".into(),
+            scope: "6020B".into(),
+            outside: vec![("6010D".into(), "paint".into())],
+        };
+        assert_eq!(
+            r.to_string(),
+            "rokonjo may authorise 6020B, not 6010D/paint"
+        );
+        let r = Refusal::NoReview {
+            policy: ReviewPolicy::Required,
+            since: None,
+            stale: vec![(
+                "Ruth Okonjo".into(),
+                "2026-11-18".into(),
+                vec!["limits.csv".into()],
+            )],
+        };
+        assert_eq!(
+            r.to_string(),
+            "the lab requires a review before release, and there is none of the batch's current inputs; \
+             the review by Ruth Okonjo on 2026-11-18 was of other inputs (limits.csv changed since)"
+        );
+        let r = Refusal::UnknownSignatory {
+            id: "x".into(),
+            ids: vec!["a".into(), "b".into()],
+        };
+        assert_eq!(r.hint(), "pass --by ID, one of: a, b");
+    }
+}

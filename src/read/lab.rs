@@ -532,4 +532,90 @@ mod tests {
             "{e}"
         );
     }
+
+    const BASE: &str = "name='L'\naddress='A'\n";
+
+    #[test]
+    fn the_older_signatory_is_one_with_everything_in_scope() {
+        let lab = Lab::parse(
+            "lab.toml",
+            &format!("{BASE}signatory='S'\nsignatory_role='R'\n"),
+        )
+        .unwrap();
+        assert!(lab.signatory_is_old_form);
+        assert_eq!(lab.signatories.len(), 1);
+        let s = &lab.signatories[0];
+        assert_eq!(
+            (s.id.as_str(), s.name.as_str(), s.role.as_str()),
+            ("default", "S", "R")
+        );
+        assert!(s.covers("6010D", "paint"));
+        assert_eq!(lab.review, ReviewPolicy::Optional);
+    }
+
+    #[test]
+    fn signatory_tables_with_scopes() {
+        let lab = Lab::parse(
+            "lab.toml",
+            &format!(
+                "{BASE}review='independent'\n[[signatory]]\nid='a'\nname='Ann'\nrole='TM'\nscope='*'\n\
+                 [[signatory]]\nid='b'\nname='Ben'\nscope=['6020B', '6010D/paint', '*/food-simulant']\n"
+            ),
+        )
+        .unwrap();
+        assert!(!lab.signatory_is_old_form);
+        assert_eq!(lab.review, ReviewPolicy::Independent);
+        assert_eq!(
+            (lab.signatory.as_str(), lab.signatory_role.as_str()),
+            ("Ann", "TM")
+        );
+        let b = &lab.signatories[1];
+        assert_eq!(b.role, "Authorised signatory");
+        assert_eq!(b.scope_text(), "6020B, 6010D/paint, */food-simulant");
+        assert!(b.covers("6020b", "ceramic-leachate"));
+        assert!(b.covers("6010D", "Paint"));
+        assert!(!b.covers("6010D", "soil"));
+        assert!(b.covers("7010", "food-simulant"));
+    }
+
+    #[test]
+    fn bad_signatory_tables_name_their_line() {
+        let err = |body: &str| {
+            Lab::parse("lab.toml", &format!("{BASE}{body}"))
+                .unwrap_err()
+                .to_string()
+        };
+        let one = "[[signatory]]\nid='a'\nname='Ann'\nscope='*'\n";
+        assert_eq!(
+            err(&format!(
+                "{one}[[signatory]]\nid='A'\nname='Al'\nscope='*'\n"
+            )),
+            "lab.toml:7: field `id`: `A` is used by signatory 1 already"
+        );
+        assert_eq!(
+            err("[[signatory]]\nid='a'\nname='Ann'\n"),
+            "lab.toml:3: field `scope`: missing or empty in this [[signatory]] table"
+        );
+        assert_eq!(
+            err("[[signatory]]\nid='a b'\nname='Ann'\nscope='*'\n"),
+            "lab.toml:3: field `id`: `a b` contains a space"
+        );
+        assert_eq!(
+            err("[[signatory]]\nid='a'\nname='Ann'\nscope=['6010D/*/x']\n"),
+            "lab.toml:3: field `scope`: `6010D/*/x` is not a scope entry"
+        );
+        assert_eq!(
+            err("[[signatory]]\nid='a'\nname=''\nscope='*'\n"),
+            "lab.toml:3: field `name`: missing or empty in this [[signatory]] table"
+        );
+        assert_eq!(
+            err("[[signatory]]\nid='a'\nname='Ann'\nscope='*'\nemail='x'\n"),
+            "lab.toml:3: field `email`: unknown key in a [[signatory]] table"
+        );
+        assert!(err(&format!("signatory_role='R'\n{one}")).contains("field `signatory_role`"));
+        assert!(err("signatory=''\n").starts_with("lab.toml:3: field `signatory`: empty"));
+        assert!(err("signatory=[]\n").contains("needs one or more [[signatory]] tables"));
+        // Missing entirely: the TOML reader names the key.
+        assert!(err("").contains("signatory"), "{}", err(""));
+    }
 }

@@ -53,10 +53,15 @@ impl TestDir {
     }
 
     pub fn limen(&self, args: &[&str]) -> Run {
+        self.limen_at(1795000000, args)
+    }
+
+    /// As `limen`, at another moment (seconds since 1970, UTC).
+    pub fn limen_at(&self, epoch: i64, args: &[&str]) -> Run {
         let out = Command::new(env!("CARGO_BIN_EXE_limen"))
             .args(args)
             .current_dir(&self.root)
-            .env("SOURCE_DATE_EPOCH", "1795000000")
+            .env("SOURCE_DATE_EPOCH", epoch.to_string())
             .env("NO_COLOR", "1")
             .output()
             .expect("run limen");
