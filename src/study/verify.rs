@@ -344,4 +344,36 @@ mod tests {
             [("2026-Q1".to_string(), 0)]
         );
     }
+
+    // Quarter boundaries at March: a window opening on a March blank starts
+    // in Q1, and one ending in March ends in Q1.
+    #[test]
+    fn quarters_begin_and_end_at_march() {
+        let spikes = [
+            "2025-04-02",
+            "2025-05-02",
+            "2025-07-02",
+            "2025-08-02",
+            "2025-10-02",
+            "2025-11-02",
+            "2026-01-20",
+            "2026-03-20",
+        ];
+        let g = Group {
+            rows: [row(9, StudyKind::Blank, Some(0.1), "2025-03-10")]
+                .into_iter()
+                .chain(
+                    spikes
+                        .iter()
+                        .enumerate()
+                        .map(|(i, d)| row(i, StudyKind::Spike, Some(1.0), d)),
+                )
+                .collect(),
+            ..study(&[])
+        };
+        assert_eq!(
+            thin_quarters(&g, day("2026-03-20")),
+            [("2025-Q1".to_string(), 0)]
+        );
+    }
 }
