@@ -282,6 +282,29 @@ pub fn authorise(
     })
 }
 
+/// The ledger's record of `reviewer` having reviewed these inputs of the
+/// report's batch at `at` (UTC).
+pub fn review_record(
+    report: &Report,
+    batch: &Batch,
+    inputs: &Inputs,
+    reviewer: &Signatory,
+    at: chrono::DateTime<chrono::Utc>,
+    note: &str,
+) -> Review {
+    Review {
+        report: report.header.report.clone(),
+        batch: report.header.batch.clone(),
+        batch_dir: batch.dir.display().to_string(),
+        reviewer: reviewer.id.clone(),
+        reviewer_name: reviewer.name.clone(),
+        reviewer_role: reviewer.role.clone(),
+        reviewed_at: at.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
+        note: note.trim().to_string(),
+        inputs: inputs.text(),
+    }
+}
+
 /// Puts the release on the report: the signatory's name and role print as
 /// authorising, the review (if any) beside them.
 pub fn apply(report: &mut Report, release: &Release) {

@@ -117,17 +117,14 @@ fn issue_batches(
                 message: "the demo lab.toml has no signatory rokonjo".into(),
                 hint: "run the demo in a fresh folder".into(),
             })?;
-        ledger.record_review(&limen::ledger::Review {
-            report: report.header.report.clone(),
-            batch: report.header.batch.clone(),
-            batch_dir: batch.dir.display().to_string(),
-            reviewer: reviewer.id.clone(),
-            reviewer_name: reviewer.name.clone(),
-            reviewer_role: reviewer.role.clone(),
-            reviewed_at: run.issued_at.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
-            note: "raw data, calculations and QC checked".into(),
-            inputs: inputs.text(),
-        })?;
+        ledger.record_review(&limen::release::review_record(
+            &report,
+            &batch,
+            &inputs,
+            reviewer,
+            run.issued_at,
+            "raw data, calculations and QC checked",
+        ))?;
         println!(
             "$ limen issue {} --by ivale --out {}",
             ws_dir.join(name).display(),

@@ -1,7 +1,7 @@
 use super::run_info;
 use limen::Error;
 use limen::error::EXIT_OK;
-use limen::ledger::{Ledger, Review};
+use limen::ledger::Ledger;
 use limen::read::Batch;
 use limen::release::{Inputs, Refusal};
 use std::path::PathBuf;
@@ -44,18 +44,15 @@ pub fn run(a: Args) -> Result<i32, Error> {
         eprintln!("note: {n}");
     }
     let inputs = Inputs::of(&ws, &batch);
-    let at = run.issued_at.format("%Y-%m-%dT%H:%M:%SZ").to_string();
-    ledger.record_review(&Review {
-        report: report.header.report.clone(),
-        batch: report.header.batch.clone(),
-        batch_dir: batch.dir.display().to_string(),
-        reviewer: reviewer.id.clone(),
-        reviewer_name: reviewer.name.clone(),
-        reviewer_role: reviewer.role.clone(),
-        reviewed_at: at.clone(),
-        note: a.note.as_deref().unwrap_or("").trim().to_string(),
-        inputs: inputs.text(),
-    })?;
+    let review = limen::release::review_record(
+        &report,
+        &batch,
+        &inputs,
+        reviewer,
+        run.issued_at,
+        a.note.as_deref().unwrap_or(""),
+    );
+    ledger.record_review(&review)?;
     if report.is_blocked() {
         eprintln!(
             "warning: {} is blocked ({} problem(s)); the review is recorded, but the batch cannot be issued until they are resolved",
@@ -69,7 +66,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         report.header.batch,
         reviewer.id,
         reviewer.name,
-        at,
+        review.reviewed_at,
         inputs.0.len()
     ))?;
     Ok(EXIT_OK)
