@@ -210,9 +210,7 @@ pub fn authorise(
         None if lab.signatories.len() == 1 => lab.signatories[0].clone(),
         None => return Err(Refusal::WhoAuthorises { ids: ids() }),
         Some(id) => lab
-            .signatories
-            .iter()
-            .find(|s| s.id.eq_ignore_ascii_case(id.trim()))
+            .signatory_by_id(id)
             .cloned()
             .ok_or_else(|| Refusal::UnknownSignatory {
                 id: id.trim().to_string(),
@@ -234,18 +232,14 @@ pub fn authorise(
         });
     }
     let current: Vec<&Review> = reviews.iter().filter(|r| stands(r)).collect();
-    let independent: Vec<&&Review> = current
+    let by_another = current
         .iter()
-        .filter(|r| !r.reviewer.eq_ignore_ascii_case(&signatory.id))
-        .collect();
+        .copied()
+        .find(|r| !r.reviewer.eq_ignore_ascii_case(&signatory.id));
     let chosen = match lab.review {
-        ReviewPolicy::Independent => independent.first().copied().copied(),
+        ReviewPolicy::Independent => by_another,
         // Another person's review is printed in preference to one's own.
-        _ => independent
-            .first()
-            .copied()
-            .copied()
-            .or(current.first().copied()),
+        _ => by_another.or(current.first().copied()),
     };
     if chosen.is_none() && lab.review != ReviewPolicy::Optional {
         if lab.review == ReviewPolicy::Independent && !current.is_empty() {

@@ -110,9 +110,7 @@ fn issue_batches(
         let inputs = limen::release::Inputs::of(ws, &batch);
         let reviewer = ws
             .lab
-            .signatories
-            .iter()
-            .find(|s| s.id == "rokonjo")
+            .signatory_by_id("rokonjo")
             .ok_or_else(|| Error::Usage {
                 message: "the demo lab.toml has no signatory rokonjo".into(),
                 hint: "run the demo in a fresh folder".into(),

@@ -30,9 +30,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let batch = Batch::load(&a.batch)?;
     let reviewer = ws
         .lab
-        .signatories
-        .iter()
-        .find(|s| s.id.eq_ignore_ascii_case(a.by.trim()))
+        .signatory_by_id(&a.by)
         .ok_or_else(|| Refusal::UnknownSignatory {
             id: a.by.trim().to_string(),
             ids: ws.lab.signatories.iter().map(|s| s.id.clone()).collect(),

@@ -5,7 +5,6 @@
 pub mod recompute;
 
 use rusqlite::{Connection, OptionalExtension, TransactionBehavior, params};
-use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 
 /// The schema this build writes; older ledgers are migrated forward.
@@ -158,12 +157,7 @@ fn sql_error(path: &str) -> impl Fn(rusqlite::Error) -> LedgerError + Copy + '_ 
     }
 }
 
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    Sha256::digest(bytes)
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect()
-}
+pub use crate::read::sha256_hex;
 
 /// The short code printed on a certificate: the first 16 hex digits of the
 /// SHA-256 of the report's CSV.

@@ -99,16 +99,6 @@ pub enum ReviewPolicy {
     Independent,
 }
 
-impl ReviewPolicy {
-    pub fn name(self) -> &'static str {
-        match self {
-            ReviewPolicy::Optional => "optional",
-            ReviewPolicy::Required => "required",
-            ReviewPolicy::Independent => "independent",
-        }
-    }
-}
-
 /// A person who may authorise release (ISO/IEC 17025:2017, 6.2.6), and
 /// within what.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -211,6 +201,13 @@ pub struct Lab {
 }
 
 impl Lab {
+    /// The signatory of this id (ids are compared without regard to case).
+    pub fn signatory_by_id(&self, id: &str) -> Option<&Signatory> {
+        self.signatories
+            .iter()
+            .find(|s| s.id.eq_ignore_ascii_case(id.trim()))
+    }
+
     pub fn parse(file: &str, text: &str) -> Result<Lab, ReadError> {
         let f: LabFile = super::toml_util::parse(file, text)?;
         let significant_figures = f.significant_figures.unwrap_or(3);
