@@ -28,6 +28,10 @@ pub enum Error {
     Template(#[from] crate::templates::TemplateError),
     #[error(transparent)]
     Ledger(#[from] crate::ledger::LedgerError),
+    #[error(transparent)]
+    Key(#[from] crate::keys::KeyError),
+    #[error(transparent)]
+    Sign(#[from] crate::sign::SignError),
     #[error("{message}")]
     Usage { message: String, hint: String },
     /// Release refused: who may authorise, or the review, is missing.
@@ -61,6 +65,8 @@ impl Error {
             Error::Render(e) => e.hint(),
             Error::Template(e) => e.hint(),
             Error::Ledger(e) => e.hint(),
+            Error::Key(e) => e.hint(),
+            Error::Sign(e) => e.hint(),
             Error::Usage { hint, .. } | Error::Refused { hint, .. } => hint.clone(),
             Error::Stdout(_) => "check the disk or the file standard output goes to".into(),
             Error::BrokenPipe => String::new(),

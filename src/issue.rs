@@ -7,6 +7,7 @@ use crate::render::certificate::Certificate;
 use crate::render::csv::Csv;
 use crate::render::{Render, RenderError};
 use crate::report::Report;
+use crate::sign::Identity;
 use crate::templates::Templates;
 use std::path::{Path, PathBuf};
 
@@ -111,14 +112,42 @@ fn stop_at(fault: Option<Fault>, here: Fault) {
 fn stop_at(_: Option<Fault>, _: Fault) {}
 
 /// The report's files with its verification code (the first 16 hex digits
-/// of the CSV's SHA-256) set on the report and printed on the certificate.
+/// of the CSV's SHA-256) set on the report and printed on the certificate,
+/// and the certificate signed by `signer`, the authorising signatory.
 pub fn render_coded(
     report: &mut Report,
     templates: &Templates,
-) -> Result<(Vec<IssuedFile>, Vec<String>), RenderError> {
+    signer: &Identity,
+) -> Result<(Vec<IssuedFile>, Vec<String>), crate::Error> {
     let csv = Csv.bytes(report);
     report.header.verification_code = Some(crate::ledger::verification_code(&csv));
-    render(report, templates)
+    let (mut files, warnings) = render(report, templates)?;
+    sign_certificate(&mut files, report, signer)?;
+    Ok((files, warnings))
+}
+
+/// Signs the PDF among `files` in the authorising signatory's name, dated
+/// at the report's issue time so the bytes stay reproducible.
+fn sign_certificate(
+    files: &mut [IssuedFile],
+    report: &Report,
+    signer: &Identity,
+) -> Result<(), crate::sign::SignError> {
+    let h = &report.header;
+    let reason = format!(
+        "Certificate of analysis {} revision {} authorised for release",
+        h.report, h.revision
+    );
+    let fields = crate::sign::Fields {
+        name: &h.signatory,
+        reason: &reason,
+        location: &h.lab_name,
+        at: h.issued_at.timestamp(),
+    };
+    for f in files.iter_mut().filter(|f| f.name.ends_with(".pdf")) {
+        f.bytes = crate::sign::sign_pdf(&f.bytes, signer, &fields)?;
+    }
+    Ok(())
 }
 
 /// What a recorded issue needs besides the report.
@@ -131,6 +160,8 @@ pub struct Record<'a> {
     pub reason: String,
     pub changed: Vec<String>,
     pub templates: &'a Templates,
+    /// The authorising signatory's key and certificate.
+    pub signer: &'a Identity,
 }
 
 /// Refuses a report that cannot be issued into `dir`: a first issue whose
@@ -181,7 +212,7 @@ fn record_files(
 ) -> Result<(Vec<PathBuf>, Vec<String>), crate::Error> {
     let (files, warnings) = match rec.rendered {
         Some(done) => done,
-        None => render_coded(report, rec.templates)?,
+        None => render_coded(report, rec.templates, rec.signer)?,
     };
     let mut staged = Vec::new();
     for f in &files {
@@ -249,6 +280,8 @@ pub struct Job {
     pub report: Report,
     pub batch: Batch,
     pub site: usize,
+    /// The authorising signatory's key and certificate.
+    pub signer: Identity,
 }
 
 /// What `issue_all` reports as it goes, for the caller to show.
@@ -288,7 +321,11 @@ pub fn issue_all(
     let mut rendered = Vec::with_capacity(jobs.len());
     for j in jobs.iter_mut() {
         on(Event::Rendering(&j.report.header.report));
-        rendered.push(render_coded(&mut j.report, sites[j.site].templates)?);
+        rendered.push(render_coded(
+            &mut j.report,
+            sites[j.site].templates,
+            &j.signer,
+        )?);
     }
     let mut issued = Vec::with_capacity(jobs.len());
     for (mut job, files) in jobs.into_iter().zip(rendered) {
@@ -300,6 +337,7 @@ pub fn issue_all(
             reason: String::new(),
             changed: Vec::new(),
             templates: site.templates,
+            signer: &job.signer,
         };
         let (paths, warnings) =
             record_files(&mut site.ledger, dir, &mut job.report, record, fault)?;

@@ -41,6 +41,8 @@ pub struct ReissueRequest<'a> {
     pub lab: &'a crate::read::Lab,
     /// The authorising signatory's id (None: the lab's only one).
     pub by: Option<&'a str>,
+    /// The workspace whose keys/ folder holds the signatories' keys.
+    pub keys: &'a Path,
 }
 
 /// Recomputes a report's latest revision and, if anything changed (or
@@ -93,6 +95,11 @@ pub fn reissue(
         crate::release::Reviewed::After(&prev.issued_at),
     )?;
     crate::release::apply(&mut report, &release);
+    let signer = crate::keys::load(
+        req.keys,
+        &release.signatory.id,
+        report.header.issued_at.timestamp(),
+    )?;
     let record = crate::issue::Record {
         rendered: None,
         snapshot: snapshot(&ws, &batch, &report),
@@ -100,6 +107,7 @@ pub fn reissue(
         reason: req.reason.trim().to_string(),
         changed,
         templates: req.templates,
+        signer: &signer,
     };
     let (paths, warnings) =
         crate::issue::issue_recorded(ledger, req.out, &mut report, record, req.fault)?;

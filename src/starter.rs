@@ -37,6 +37,24 @@ pub const DEMO: &[(&str, &str)] = &[
         "studies/cd-paint-2611.csv",
         include_str!("../demo-batches/studies/cd-paint-2611.csv"),
     ),
+    // The demo signatories' keys: published with the demo, so anyone can
+    // sign as these invented people. A real lab's keys never leave keys/.
+    (
+        "keys/ivale.key.pem",
+        include_str!("../demo-batches/keys/ivale.key.pem"),
+    ),
+    (
+        "keys/ivale.cert.pem",
+        include_str!("../demo-batches/keys/ivale.cert.pem"),
+    ),
+    (
+        "keys/rokonjo.key.pem",
+        include_str!("../demo-batches/keys/rokonjo.key.pem"),
+    ),
+    (
+        "keys/rokonjo.cert.pem",
+        include_str!("../demo-batches/keys/rokonjo.cert.pem"),
+    ),
 ];
 
 /// The demo's limit study, its study id and the date its limits take effect:
@@ -121,7 +139,17 @@ pub fn lay_down(dir: &Path, files: &[(&str, &str)]) -> Result<(), crate::output:
             .file_name()
             .map(|f| f.to_string_lossy().into_owned())
             .unwrap_or_default();
-        crate::output::write_new(parent, &file, text.as_bytes())?;
+        let written = crate::output::write_new(parent, &file, text.as_bytes())?;
+        #[cfg(unix)]
+        if file.ends_with(".key.pem") {
+            use std::os::unix::fs::PermissionsExt;
+            std::fs::set_permissions(&written, std::fs::Permissions::from_mode(0o600)).map_err(
+                |source| crate::output::OutputError::Io {
+                    path: written.display().to_string(),
+                    source,
+                },
+            )?;
+        }
     }
     Ok(())
 }

@@ -23,6 +23,7 @@ fn fixture(name: &str, results: &str) -> TestDir {
     t.write("ws/specs.csv", SPECS);
     t.write("ws/b1/batch.toml", BATCH);
     t.write("ws/b1/results.csv", results);
+    t.signing_key("ws", "default");
     t
 }
 
@@ -358,6 +359,16 @@ fn init_gives_a_workspace_that_checks() {
         t.read("lab/templates/cautions.hbs"),
         std::fs::read_to_string(util::repo().join("report-templates/cautions.hbs")).unwrap()
     );
+    // A new lab has no signing key until it makes one.
+    let r = t.limen(&["issue", "lab/example-batch", "--out", "out"]);
+    assert_eq!(r.code, 2, "{}", r.stderr);
+    assert!(
+        r.stderr.contains("keys new --signatory signatory-1"),
+        "{}",
+        r.stderr
+    );
+    assert!(!t.exists("out/COA-EXAMPLE-001.pdf"));
+    t.signing_key("lab", "signatory-1");
     let r = t.limen(&["issue", "lab/example-batch", "--out", "out"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(t.exists("out/COA-EXAMPLE-001.pdf"));

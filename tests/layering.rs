@@ -159,6 +159,7 @@ fn computation_never_imports_rendering_output_or_the_ledger() {
         "report",
         "study",
         "power",
+        "sign",
     ];
     let above = [
         "render",

@@ -210,6 +210,7 @@ fn small_ws(t: &TestDir, reports: usize) {
             format!("lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec\nS{i},sample,Pb,paint,6010D,{},ug/L,1,0.100,50,2026-11-13,P\n", 40 + i),
         );
     }
+    t.signing_key("ws", "default");
 }
 
 fn tmp_files(t: &TestDir) -> Vec<String> {

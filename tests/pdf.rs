@@ -180,6 +180,7 @@ fn a_long_report_repeats_its_header_and_never_splits_a_row() {
         ));
     }
     t.write("ws/b/r.csv", csv);
+    t.signing_key("ws", "default");
     let r = t.limen(&["issue", "ws/b", "--out", "out"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let p = pages(&t.path("out/LONG-1.pdf"));

@@ -33,6 +33,7 @@ fn fixture(name: &str, body: &str) -> TestDir {
     t.write("ws/specs.csv", SPECS);
     t.write("ws/b1/batch.toml", BATCH);
     t.write("ws/b1/results.csv", format!("{HEAD}{body}"));
+    t.signing_key("ws", "default");
     t
 }
 

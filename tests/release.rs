@@ -254,6 +254,7 @@ fn the_older_signatory_form_still_issues_with_a_note() {
         "ws/lab.toml",
         format!("signatory = \"Dr Imogen Vale\"\n{head}"),
     );
+    t.signing_key("ws", "default");
     let r = t.limen(&["issue", CERAMICS, "--out", "out"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(r.stderr.contains("is the older form"), "{}", r.stderr);

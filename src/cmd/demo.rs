@@ -67,7 +67,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     study_step(&ws, &ws_dir, &reports_dir, &run)?;
     let ws = Workspace::load(&ws_dir)?;
     let reissued = impact_and_reissue(&ws, &mut ledger, &templates, &reports_dir, &run)?;
-    verify_step(&ledger, &reports_dir, &reissued)?;
+    verify_step(&ledger, &ws_dir, &reports_dir, &reissued)?;
 
     println!("workspace: {} (ledger: ledger.sqlite)", ws_dir.display());
     println!("reports:   {}", reports_dir.display());
@@ -136,6 +136,7 @@ fn issue_batches(
             limen::release::Reviewed::Of(&inputs),
         )?;
         limen::release::apply(&mut report, &release);
+        let signer = limen::keys::load(ws_dir, "ivale", run.issued_at.timestamp())?;
         let record = Record {
             rendered: None,
             snapshot: snapshot(ws, &batch, &report),
@@ -143,6 +144,7 @@ fn issue_batches(
             reason: String::new(),
             changed: Vec::new(),
             templates,
+            signer: &signer,
         };
         let (paths, warnings) = issue_recorded(ledger, reports_dir, &mut report, record, None)?;
         for w in warnings {
@@ -256,6 +258,7 @@ fn impact_and_reissue(
             fault: None,
             lab: &ws.lab,
             by: Some("ivale"),
+            keys: &ws.root,
         };
         if let Reissued::Issued {
             revision,
@@ -284,6 +287,7 @@ fn impact_and_reissue(
 /// Step 5: both revisions of each re-issued report verify.
 fn verify_step(
     ledger: &Ledger,
+    ws_dir: &Path,
     reports_dir: &Path,
     reissued: &[(String, Vec<PathBuf>)],
 ) -> Result<(), Error> {
@@ -298,9 +302,11 @@ fn verify_step(
             let bytes = limen::read::csvtable::read_file(p)?;
             println!("$ limen verify {}", p.display());
             println!(
-                "{}\n",
+                "{}",
                 limen::ledger::verify_file(ledger, &bytes)?.describe(&p.display().to_string())
             );
+            let certs = limen::keys::lab_certificates(ws_dir);
+            println!("{}", limen::sign::check_pdf(&bytes).describe(Some(&certs)));
         }
     }
 

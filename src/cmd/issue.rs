@@ -60,8 +60,10 @@ pub fn run(a: Args) -> Result<i32, Error> {
             ledger,
         });
     }
-    // Every release is authorised before anything is written.
+    // Every release is authorised, and its signing key found, before
+    // anything is written.
     let mut jobs = Vec::with_capacity(reports.len());
+    let mut keys: Vec<((usize, String), limen::sign::Identity)> = Vec::new();
     for (mut report, batch, site) in reports {
         let s = &sites[site];
         let release = limen::release::authorise(
@@ -79,10 +81,20 @@ pub fn run(a: Args) -> Result<i32, Error> {
             e
         })?;
         limen::release::apply(&mut report, &release);
+        let who = (site, release.signatory.id.clone());
+        let signer = match keys.iter().find(|(k, _)| *k == who) {
+            Some((_, id)) => id.clone(),
+            None => {
+                let id = limen::keys::load(&s.ws.root, &who.1, run.issued_at.timestamp())?;
+                keys.push((who, id.clone()));
+                id
+            }
+        };
         jobs.push(Job {
             report,
             batch,
             site,
+            signer,
         });
     }
     let issued = issue_all(&mut sites, &a.out, jobs, fault, &mut |e| match e {

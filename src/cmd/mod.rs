@@ -11,6 +11,7 @@ mod history;
 mod impact;
 mod init;
 mod issue;
+mod keys;
 mod reissue;
 mod review;
 mod study;
@@ -40,6 +41,8 @@ enum Command {
     Review(review::Args),
     /// Issue the report files for one or more batches.
     Issue(issue::Args),
+    /// Create, import or list the signatories' signing keys and certificates.
+    Keys(keys::Args),
     /// Re-issue a report as a new revision after a limit or detail changes.
     Reissue(Box<reissue::Args>),
     /// List the issued reports whose results change under today's register and specs.
@@ -63,6 +66,7 @@ pub fn run() -> i32 {
         Command::Review(a) => review::run(a),
         Command::Issue(a) => issue::run(a),
         Command::Init(a) => init::run(a),
+        Command::Keys(a) => keys::run(a),
         Command::Reissue(a) => reissue::run(*a),
         Command::Impact(a) => impact::run(a),
         Command::Verify(a) => verify::run(a),

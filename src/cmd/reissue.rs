@@ -91,6 +91,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
         fault: super::fault()?,
         lab: &ws.lab,
         by: a.by.as_deref(),
+        keys: &ws.root,
     };
     let outcome = reissue(&mut ledger, &against, &req, &run)?;
     tell(&a.report, outcome)

@@ -47,6 +47,26 @@ impl TestDir {
         self.root.join(rel).exists()
     }
 
+    /// Gives signatory `id` of the workspace at `ws` a signing key and a
+    /// self-signed certificate valid from 2020-09-13 for 60 years, so
+    /// tests at any moment can issue.
+    pub fn signing_key(&self, ws: &str, id: &str) {
+        let r = self.limen_at(
+            1_600_000_000,
+            &[
+                "keys",
+                "new",
+                "--signatory",
+                id,
+                "--days",
+                "21900",
+                "--workspace",
+                ws,
+            ],
+        );
+        assert_eq!(r.code, 0, "keys new: {}", r.stderr);
+    }
+
     /// Copies the repository's demo workspace into this folder.
     pub fn demo_workspace(&self, rel: &str) {
         copy_tree(&repo().join("demo-batches"), &self.root.join(rel));
