@@ -418,11 +418,22 @@ fn ledger_and_verify(n: u32) {
     let ledger_path = ws_dir.join("ledger.sqlite");
     let valid_ledger = std::fs::read(&ledger_path).unwrap();
     let pdf = std::fs::read(t.path("out/COA-2611-052.pdf")).unwrap();
+    // The zero padding after the signature's DER in /Contents: the only
+    // bytes a change to which leaves the signature valid.
+    let found = limen::sign::pdf::locate(&pdf).unwrap().unwrap();
+    let hex = &pdf[found.hole.0 + 1..found.hole.1 - 1];
+    let used = hex.iter().rposition(|&c| c != b'0').map_or(0, |p| p + 1);
+    let padding = found.hole.0 + 1 + used.next_multiple_of(2)..found.hole.1 - 1;
     {
         let (ledger, _) = Ledger::open(&ws_dir).unwrap();
         fuzz("verify", &pdf, n.min(2_000).max(n / 50), &mut |bytes| {
             let v = limen::ledger::verify_file(&ledger, bytes);
             prop_assert!(v.is_ok(), "{:?}", v.err());
+            if let limen::sign::Check::Valid { .. } = limen::sign::check_pdf(bytes) {
+                let same_outside = bytes.len() == pdf.len()
+                    && (0..pdf.len()).all(|i| padding.contains(&i) || bytes[i] == pdf[i]);
+                prop_assert!(same_outside, "a damaged certificate still checks valid");
+            }
             Ok(())
         });
     }

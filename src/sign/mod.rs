@@ -171,3 +171,107 @@ fn pdf_date(m: &str) -> String {
         _ => m.to_string(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A one-page PDF with a classic table, as the certificate writer
+    /// lays one out.
+    fn tiny() -> Vec<u8> {
+        let objs = [
+            "<</Type/Pages/Count 1/Kids[2 0 R]>>",
+            "<</Type/Page/MediaBox[0 0 10 10]/Parent 1 0 R/Annots[]>>",
+            "<</Type/Catalog/Pages 1 0 R>>",
+        ];
+        let mut out = b"%PDF-1.3\n".to_vec();
+        let mut offs = Vec::new();
+        for (i, o) in objs.iter().enumerate() {
+            offs.push(out.len());
+            out.extend_from_slice(format!("{} 0 obj\n{o}\nendobj\n", i + 1).as_bytes());
+        }
+        let x = out.len();
+        out.extend_from_slice(b"xref\n0 4\n0000000000 65535 f \n");
+        for o in offs {
+            out.extend_from_slice(format!("{o:010} 00000 n \n").as_bytes());
+        }
+        out.extend_from_slice(
+            format!("trailer\n<</Root 3 0 R/Size 4>>\nstartxref\n{x}\n%%EOF").as_bytes(),
+        );
+        out
+    }
+
+    fn identity() -> Identity {
+        let key = p256::ecdsa::SigningKey::from_bytes(&[11; 32].into()).unwrap();
+        let subject = cert::Subject {
+            name: "Signer",
+            role: "Role",
+            organisation: "Lab",
+        };
+        let c = cert::self_signed(&key, &subject, 1_767_225_600, 365).unwrap();
+        Identity {
+            key,
+            chain: vec![c],
+        }
+    }
+
+    const FIELDS: Fields<'static> = Fields {
+        name: "Signer",
+        reason: "release",
+        location: "Lab",
+        at: 1_767_225_600,
+    };
+
+    #[test]
+    fn a_signed_file_checks_and_any_change_outside_the_padding_breaks_it() {
+        let signed = sign_pdf(&tiny(), &identity(), &FIELDS).unwrap();
+        let Check::Valid { signer, at, .. } = check_pdf(&signed) else {
+            panic!("{:?}", check_pdf(&signed));
+        };
+        assert_eq!(signer, "Signer");
+        assert_eq!(at.as_deref(), Some("D:20260101000000Z"));
+        let found = pdf::locate(&signed).unwrap().unwrap();
+        let der_end = found.hole.0 + 1 + 2 * cms_len(&found.cms);
+        for i in 0..signed.len() {
+            if (der_end..found.hole.1 - 1).contains(&i) {
+                continue;
+            }
+            let mut bad = signed.clone();
+            bad[i] ^= 0x01;
+            assert!(
+                matches!(check_pdf(&bad), Check::Broken { .. }),
+                "byte {i} ({:?}) changed and the signature still holds",
+                signed[i] as char
+            );
+        }
+        assert_eq!(check_pdf(&tiny()), Check::Unsigned);
+        assert!(matches!(
+            check_pdf(&signed[..signed.len() - 1]),
+            Check::Broken { .. }
+        ));
+    }
+
+    fn cms_len(der: &[u8]) -> usize {
+        // ContentInfo SEQUENCE with a two-byte long-form length (0x82).
+        assert_eq!(&der[..2], &[0x30, 0x82]);
+        4 + usize::from(der[2]) * 256 + usize::from(der[3])
+    }
+
+    #[test]
+    fn signing_is_reproducible_and_time_goes_in_m() {
+        let a = sign_pdf(&tiny(), &identity(), &FIELDS).unwrap();
+        let b = sign_pdf(&tiny(), &identity(), &FIELDS).unwrap();
+        assert_eq!(a, b);
+        let later = Fields {
+            at: FIELDS.at + 1,
+            ..FIELDS
+        };
+        assert_ne!(sign_pdf(&tiny(), &identity(), &later).unwrap(), a);
+    }
+
+    #[test]
+    fn dates_print_as_iso_8601() {
+        assert_eq!(pdf_date("D:20260921141320Z"), "2026-09-21T14:13:20Z");
+        assert_eq!(pdf_date("D:2026"), "D:2026");
+    }
+}

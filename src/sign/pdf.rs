@@ -328,6 +328,18 @@ pub struct Found {
 /// Err when there is one but it cannot be read.
 pub fn locate(pdf: &[u8]) -> Result<Option<Found>, String> {
     let Some(br) = rfind(pdf, b"/ByteRange") else {
+        // A signature field or dictionary whose range was defaced is a
+        // damaged signature, not an unsigned file.
+        for mark in [
+            &b"/FT/Sig"[..],
+            b"/Type/Sig",
+            b"/Adobe.PPKLite",
+            b"ETSI.CAdES",
+        ] {
+            if find(pdf, mark, 0).is_some() {
+                return Err("a signature whose /ByteRange cannot be found".into());
+            }
+        }
         return Ok(None);
     };
     let open = find(pdf, b"[", br).ok_or("a /ByteRange without numbers")?;
