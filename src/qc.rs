@@ -1221,7 +1221,8 @@ mod tests {
         Cd,paint,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
         Pb,metal,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
         Pb,émail,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
-        Pb,glaçure,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n";
+        Pb,glaçure,6010D,ug/L,8,25,2025-01-01,5000,ug/L\n\
+        Pb,paint,6020B,ug/L,8,25,2025-01-01,5000,ug/L\n";
     const HEAD: &str = "lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,spike_added,parent_id\n";
 
     fn line(
@@ -1479,5 +1480,101 @@ mod tests {
         assert_eq!((kind, pass), ("difference", false));
         let (kind, _, _, _) = precision(d("9"), d("12"), d("2"), Unit::MgPerKg, &c).unwrap();
         assert_eq!(kind, "difference");
+    }
+
+    /// `line`, run by method 6020B.
+    fn line_6020b(id: &str, kind: &str, reading: &str, rest: &str) -> String {
+        line(id, kind, "Pb", "paint", reading, rest).replace(",6010D,", ",6020B,")
+    }
+
+    #[test]
+    fn names_compare_without_case_by_unicode_rules() {
+        assert!(same("Pb", "pB"));
+        assert!(same("émail", "ÉMAIL"));
+        assert!(!same("émail", "email"));
+        // KELVIN SIGN (U+212A) lower-cases to k (Unicode case mapping), so
+        // the non-ASCII path is taken when only one side is ASCII.
+        assert!(same("K", "\u{212A}"));
+        assert!(!same("K", "\u{212B}"));
+    }
+
+    #[test]
+    fn required_qc_and_held_counts_are_per_analyte_and_method() {
+        let mb = line("MB", "method-blank", "Pb", "paint", "1", ",,");
+        let rows = line("S1", "sample", "Pb", "paint", "100", "L,,")
+            + &line("S2", "sample", "Pb", "paint", "100", "L,,")
+            + &line_6020b("S3", "sample", "100", "L,,")
+            + &mb;
+        let r = build("\"method-blank\"", "90", &rows).unwrap();
+        // The 6010D blank does not stand for the 6020B results.
+        let msgs: Vec<String> = r.problems.iter().map(|p| p.message.clone()).collect();
+        assert!(
+            msgs.iter()
+                .any(|m| m == "no method-blank for Pb / 6020B, which the lab's QC rules require"),
+            "{msgs:?}"
+        );
+        assert!(!msgs.iter().any(|m| m.contains("Pb / 6010D")), "{msgs:?}");
+        // A failed 6020B LCS (40 %) holds the one 6020B result, not the two 6010D ones.
+        let rows = rows + &line_6020b("LCS", "lcs", "40", ",50,");
+        let mut r = build("", "90", &rows).unwrap();
+        let msgs: Vec<String> = r.problems.iter().map(|p| p.message.clone()).collect();
+        assert!(
+            msgs.iter()
+                .any(|m| m.ends_with("1 result(s) of Pb / 6020B are held")),
+            "{msgs:?}"
+        );
+        r.accept_qc("test");
+        assert!(
+            quals(&r, "S3", "Pb")
+                .iter()
+                .any(|q| q.starts_with("qc-exception"))
+        );
+        for id in ["S1", "S2"] {
+            assert!(
+                quals(&r, id, "Pb").is_empty(),
+                "{id}: {:?}",
+                quals(&r, id, "Pb")
+            );
+        }
+    }
+
+    #[test]
+    fn a_blank_is_judged_against_its_own_analyte_method_and_matrix_results() {
+        // Blank 40 µg/L = 20 mg/kg. Threshold: the highest of the MDL (4
+        // mg/kg), 5 % of the limit (4.5) and 5 % of the lowest result of its
+        // group: S1 at 1000 mg/kg gives 50, so the blank passes. A low
+        // result of another analyte or matrix must not lower it.
+        let base = line("S1", "sample", "Pb", "paint", "2000", "L,,")
+            + &line("MB", "method-blank", "Pb", "paint", "40", ",,");
+        let r = build("", "90", &base).unwrap();
+        assert_eq!(check(&r, "method blank").outcome, Outcome::Pass);
+        for other in [
+            line("S2", "sample", "Cd", "paint", "100", ",,"),
+            line("S2", "sample", "Pb", "metal", "100", ",,"),
+        ] {
+            let r = build("", "90", &(base.clone() + &other)).unwrap();
+            assert_eq!(check(&r, "method blank").outcome, Outcome::Pass, "{other}");
+        }
+        // A low result of its own group does lower it (50 mg/kg -> 2.5): fail.
+        let r = build(
+            "",
+            "90",
+            &(base + &line("S2", "sample", "Pb", "paint", "100", ",,")),
+        )
+        .unwrap();
+        assert_eq!(check(&r, "method blank").outcome, Outcome::Fail);
+    }
+
+    #[test]
+    fn a_blank_prepared_unlike_its_samples_is_an_input_error() {
+        // S1 has no mass, so it reports in µg/L; the blank is per kg.
+        let rows = "S1,sample,Pb,paint,6010D,100,ug/L,1,,50,2026-11-13,,,\n".to_string()
+            + &line("MB", "method-blank", "Pb", "paint", "1", ",,");
+        let e = build("", "90", &rows).err().expect("a unit clash");
+        let text = e.to_string();
+        assert!(
+            text.contains("method-blank MB is in mg/kg but the samples it checks are in"),
+            "{text}"
+        );
     }
 }
