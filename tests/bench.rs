@@ -104,6 +104,7 @@ fn pdf_workspace(t: &TestDir) {
     }
     t.write("ws/limits.csv", limits);
     t.write("ws/specs.csv", specs);
+    t.signing_key("ws", "default");
 }
 
 fn pdf_batch(t: &TestDir, dir: &str, report: &str, samples: usize) {
