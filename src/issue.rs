@@ -198,74 +198,165 @@ pub fn issue_recorded(
     fault: Option<Fault>,
 ) -> Result<(Vec<PathBuf>, Vec<String>), crate::Error> {
     preflight(ledger, dir, report)?;
-    record_files(ledger, dir, report, rec, fault)
-}
-
-/// Stages, records, publishes and completes one report whose number and
-/// file names have passed `preflight`.
-fn record_files(
-    ledger: &mut crate::ledger::Ledger,
-    dir: &Path,
-    report: &mut Report,
-    rec: Record<'_>,
-    fault: Option<Fault>,
-) -> Result<(Vec<PathBuf>, Vec<String>), crate::Error> {
     let (files, warnings) = match rec.rendered {
         Some(done) => done,
         None => render_coded(report, rec.templates, rec.signer)?,
     };
-    let mut staged = Vec::new();
-    for f in &files {
-        match crate::output::stage(dir, &f.name, &f.bytes) {
+    let entry = Entry {
+        site: 0,
+        report,
+        files,
+        snapshot: rec.snapshot,
+        local_offset: rec.local_offset,
+        reason: rec.reason,
+        changed: rec.changed,
+    };
+    let mut paths = record_all(&mut [ledger], dir, vec![entry], fault)?;
+    Ok((paths.pop().unwrap_or_default(), warnings))
+}
+
+/// One rendered report waiting to be recorded, in the ledger `site`.
+struct Entry<'r> {
+    site: usize,
+    report: &'r Report,
+    files: Vec<IssuedFile>,
+    snapshot: crate::ledger::Snapshot,
+    local_offset: String,
+    reason: String,
+    changed: Vec<String>,
+}
+
+/// Stages, records, publishes and completes reports whose numbers and
+/// file names have passed `preflight`, each step once for all of them: one
+/// file-system sync for the staged files, one transaction per ledger for
+/// the pending records, one directory sync for the new names, one
+/// transaction per ledger to complete. A crash at any point leaves each
+/// report complete or absent (the ledger settles pending records on open).
+fn record_all(
+    ledgers: &mut [&mut crate::ledger::Ledger],
+    dir: &Path,
+    mut entries: Vec<Entry<'_>>,
+    fault: Option<Fault>,
+) -> Result<Vec<Vec<PathBuf>>, crate::Error> {
+    let mut staged: Vec<crate::output::Staged> = Vec::new();
+    let discard_all = |staged: &[crate::output::Staged]| {
+        staged.iter().for_each(crate::output::discard);
+    };
+    for f in entries.iter().flat_map(|e| &e.files) {
+        match crate::output::stage_unsynced(dir, &f.name, &f.bytes) {
             Ok(s) => staged.push(s),
             Err(e) => {
-                staged.iter().for_each(crate::output::discard);
+                discard_all(&staged);
                 return Err(e.into());
             }
         }
     }
+    if let Err(e) = crate::output::sync_staged(dir, &staged.iter().collect::<Vec<_>>()) {
+        discard_all(&staged);
+        return Err(e.into());
+    }
     stop_at(fault, Fault::AfterStage);
-    let new_files = files
-        .iter()
-        .zip(&staged)
-        .map(|(f, s)| crate::ledger::NewFile {
-            name: f.name.clone(),
-            tmp: s.tmp.clone(),
-            sha256: crate::ledger::sha256_hex(&f.bytes),
-            size: f.bytes.len() as u64,
-        })
-        .collect();
-    let id = match ledger.begin(&crate::ledger::NewRecord {
-        report,
-        local_offset: rec.local_offset,
-        reason: rec.reason,
-        changed: rec.changed,
-        out_dir: dir.to_path_buf(),
-        snapshot: rec.snapshot,
-        files: new_files,
-    }) {
-        Ok(id) => id,
-        Err(e) => {
-            staged.iter().for_each(crate::output::discard);
-            return Err(e.into());
+
+    // The staged files of entry k, in order.
+    let mut spans = Vec::with_capacity(entries.len());
+    let mut at = 0;
+    for e in &entries {
+        spans.push(at..at + e.files.len());
+        at += e.files.len();
+    }
+    let mut ids: Vec<Option<i64>> = vec![None; entries.len()];
+    let site_of: Vec<usize> = entries.iter().map(|e| e.site).collect();
+    let abandon = |ledgers: &mut [&mut crate::ledger::Ledger], ids: &[Option<i64>]| {
+        for (&site, id) in site_of.iter().zip(ids) {
+            if let Some(id) = id {
+                let _ = ledgers[site].abandon(*id);
+            }
         }
     };
+    for site in 0..ledgers.len() {
+        let mine: Vec<usize> = (0..entries.len())
+            .filter(|&k| entries[k].site == site)
+            .collect();
+        if mine.is_empty() {
+            continue;
+        }
+        // The snapshots move into the records: a large results file is
+        // not held twice.
+        let snapshots: Vec<crate::ledger::Snapshot> = mine
+            .iter()
+            .map(|&k| std::mem::take(&mut entries[k].snapshot))
+            .collect();
+        let records: Vec<crate::ledger::NewRecord<'_>> = mine
+            .iter()
+            .zip(snapshots)
+            .map(|(&k, snapshot)| {
+                let e = &entries[k];
+                crate::ledger::NewRecord {
+                    report: e.report,
+                    local_offset: e.local_offset.clone(),
+                    reason: e.reason.clone(),
+                    changed: e.changed.clone(),
+                    out_dir: dir.to_path_buf(),
+                    snapshot,
+                    files: e
+                        .files
+                        .iter()
+                        .zip(&staged[spans[k].clone()])
+                        .map(|(f, s)| crate::ledger::NewFile {
+                            name: f.name.clone(),
+                            tmp: s.tmp.clone(),
+                            sha256: crate::ledger::sha256_hex(&f.bytes),
+                            size: f.bytes.len() as u64,
+                        })
+                        .collect(),
+                }
+            })
+            .collect();
+        match ledgers[site].begin_all(&records) {
+            Ok(new) => {
+                for (&k, id) in mine.iter().zip(new) {
+                    ids[k] = Some(id);
+                }
+            }
+            Err(e) => {
+                abandon(ledgers, &ids);
+                discard_all(&staged);
+                return Err(e.into());
+            }
+        }
+    }
     stop_at(fault, Fault::AfterRecord);
+
     for (k, s) in staged.iter().enumerate() {
-        if let Err(e) = crate::output::publish(s) {
+        if let Err(e) = crate::output::link(s) {
             for done in &staged[..k] {
                 let _ = std::fs::remove_file(&done.target);
             }
-            staged.iter().for_each(crate::output::discard);
-            ledger.abandon(id)?;
+            discard_all(&staged);
+            abandon(ledgers, &ids);
             return Err(e.into());
         }
     }
+    crate::output::sync_dir(dir);
     stop_at(fault, Fault::AfterPublish);
-    ledger.complete(id)?;
+
+    for (site, ledger) in ledgers.iter_mut().enumerate() {
+        let mine: Vec<i64> = entries
+            .iter()
+            .zip(&ids)
+            .filter(|(e, _)| e.site == site)
+            .filter_map(|(_, id)| *id)
+            .collect();
+        if !mine.is_empty() {
+            ledger.complete_all(&mine)?;
+        }
+    }
     stop_at(fault, Fault::AfterComplete);
-    staged.iter().for_each(crate::output::discard);
-    Ok((staged.into_iter().map(|s| s.target).collect(), warnings))
+    discard_all(&staged);
+    Ok(spans
+        .into_iter()
+        .map(|r| staged[r].iter().map(|s| s.target.clone()).collect())
+        .collect())
 }
 
 /// A workspace that reports are issued from: its files, wording and ledger.
@@ -327,25 +418,33 @@ pub fn issue_all(
             &j.signer,
         )?);
     }
-    let mut issued = Vec::with_capacity(jobs.len());
-    for (mut job, files) in jobs.into_iter().zip(rendered) {
-        let site = &mut sites[job.site];
-        let record = Record {
-            rendered: Some(files),
+    let mut entries = Vec::with_capacity(jobs.len());
+    let mut warnings = Vec::with_capacity(jobs.len());
+    for (job, (files, w)) in jobs.iter().zip(rendered) {
+        let site = &sites[job.site];
+        entries.push(Entry {
+            site: job.site,
+            report: &job.report,
+            files,
             snapshot: crate::ledger::recompute::snapshot(site.ws, &job.batch, &job.report),
             local_offset: site.ws.lab.utc_offset.to_string(),
             reason: String::new(),
             changed: Vec::new(),
-            templates: site.templates,
-            signer: &job.signer,
-        };
-        let (paths, warnings) =
-            record_files(&mut site.ledger, dir, &mut job.report, record, fault)?;
-        issued.push(Issued {
+        });
+        warnings.push(w);
+    }
+    let mut ledgers: Vec<&mut crate::ledger::Ledger> =
+        sites.iter_mut().map(|s| &mut s.ledger).collect();
+    let paths = record_all(&mut ledgers, dir, entries, fault)?;
+    let issued = jobs
+        .into_iter()
+        .zip(paths)
+        .zip(warnings)
+        .map(|((job, paths), warnings)| Issued {
             report: job.report,
             paths,
             warnings,
-        });
-    }
+        })
+        .collect();
     Ok(issued)
 }

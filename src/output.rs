@@ -61,31 +61,73 @@ const TMP_SUFFIX: &str = ".limen-tmp";
 
 /// Writes `bytes` to `.<name>.<pid>.limen-tmp` in `dir` and syncs it.
 pub fn stage(dir: &Path, name: &str, bytes: &[u8]) -> Result<Staged, OutputError> {
+    let (s, f) = write_tmp(dir, name, bytes)?;
+    f.sync_all().map_err(io(&s.tmp))?;
+    Ok(s)
+}
+
+/// As `stage`, leaving the sync to `sync_staged`, so many files can be made
+/// durable at once.
+pub fn stage_unsynced(dir: &Path, name: &str, bytes: &[u8]) -> Result<Staged, OutputError> {
+    write_tmp(dir, name, bytes).map(|(s, _)| s)
+}
+
+fn write_tmp(dir: &Path, name: &str, bytes: &[u8]) -> Result<(Staged, fs::File), OutputError> {
     fs::create_dir_all(dir).map_err(io(dir))?;
     let target = dir.join(name);
     let tmp = dir.join(format!(".{name}.{}{TMP_SUFFIX}", std::process::id()));
     let mut f = fs::File::create(&tmp).map_err(io(&tmp))?;
     f.write_all(bytes).map_err(io(&tmp))?;
-    f.sync_all().map_err(io(&tmp))?;
-    Ok(Staged { tmp, target })
+    Ok((Staged { tmp, target }, f))
 }
 
-/// Gives a staged file its final name; fails rather than replace a file.
-pub fn publish(s: &Staged) -> Result<(), OutputError> {
-    match fs::hard_link(&s.tmp, &s.target) {
-        Ok(()) => {
-            if let Some(dir) = s.target.parent() {
-                // Make the new name durable before anything refers to it.
-                if let Ok(d) = fs::File::open(dir) {
-                    let _ = d.sync_all();
-                }
-            }
-            Ok(())
+/// Makes files staged in `dir` durable: on Linux one sync of the file
+/// system that holds `dir` (`syncfs`), elsewhere each file in turn.
+pub fn sync_staged(dir: &Path, staged: &[&Staged]) -> Result<(), OutputError> {
+    #[cfg(target_os = "linux")]
+    {
+        use std::os::fd::AsRawFd;
+        let d = fs::File::open(dir).map_err(io(dir))?;
+        // SAFETY: syncfs takes an open descriptor, which `d` keeps open for
+        // the call, and touches no memory of ours.
+        if unsafe { libc::syncfs(d.as_raw_fd()) } == 0 {
+            return Ok(());
         }
+    }
+    for s in staged {
+        fs::File::open(&s.tmp)
+            .and_then(|f| f.sync_all())
+            .map_err(io(&s.tmp))?;
+    }
+    let _ = dir;
+    Ok(())
+}
+
+/// Gives a staged file its final name and makes the name durable; fails
+/// rather than replace a file.
+pub fn publish(s: &Staged) -> Result<(), OutputError> {
+    link(s)?;
+    if let Some(dir) = s.target.parent() {
+        sync_dir(dir);
+    }
+    Ok(())
+}
+
+/// Gives a staged file its final name, not yet durable (`sync_dir`).
+pub fn link(s: &Staged) -> Result<(), OutputError> {
+    match fs::hard_link(&s.tmp, &s.target) {
+        Ok(()) => Ok(()),
         Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Err(OutputError::Exists {
             path: s.target.display().to_string(),
         }),
         Err(e) => Err(io(&s.target)(e)),
+    }
+}
+
+/// Makes the names in `dir` durable before anything refers to them.
+pub fn sync_dir(dir: &Path) {
+    if let Ok(d) = fs::File::open(dir) {
+        let _ = d.sync_all();
     }
 }
 

@@ -383,9 +383,44 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
     }
     set_info(&mut doc, meta)?;
     let mut warnings = Vec::new();
-    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
+    let opts = PdfSaveOptions {
+        optimize: false,
+        ..PdfSaveOptions::default()
+    };
+    let mut lo = doc.to_lopdf_document(&opts, &mut warnings);
+    compress_streams(&mut lo, COMPRESSION);
+    let mut bytes = Vec::new();
+    lo.save_to(&mut bytes)
+        .map_err(|e| PdfError::Font(format!("cannot write the PDF: {e}")))?;
     fix_document_id(&mut bytes);
     Ok((bytes, missing.into_iter().collect()))
+}
+
+/// The deflate level of every stream, chosen by measurement (DEVELOPERS.md,
+/// Benchmarks): printpdf's own choice, the best (9), spends a third of a
+/// small certificate's time for a few per cent of size.
+const COMPRESSION: u32 = 1;
+
+/// Deflates every stream that has no filter yet, keeping the raw bytes
+/// where deflate would not make them smaller (as printpdf does).
+fn compress_streams(doc: &mut lopdf::Document, level: u32) {
+    use std::io::Write;
+    for obj in doc.objects.values_mut() {
+        let lopdf::Object::Stream(stream) = obj else {
+            continue;
+        };
+        if stream.dict.get(b"Filter").is_ok() {
+            continue;
+        }
+        let mut enc = flate2::write::ZlibEncoder::new(Vec::new(), flate2::Compression::new(level));
+        let packed = enc.write_all(&stream.content).and_then(|()| enc.finish());
+        if let Ok(packed) = packed {
+            if packed.len() + 19 < stream.content.len() {
+                stream.dict.set("Filter", "FlateDecode");
+                stream.set_content(packed);
+            }
+        }
+    }
 }
 
 /// printpdf writes a random /ID pair; the same document must give the same

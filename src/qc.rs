@@ -1570,7 +1570,9 @@ mod tests {
         // S1 has no mass, so it reports in µg/L; the blank is per kg.
         let rows = "S1,sample,Pb,paint,6010D,100,ug/L,1,,50,2026-11-13,,,\n".to_string()
             + &line("MB", "method-blank", "Pb", "paint", "1", ",,");
-        let e = build("", "90", &rows).err().expect("a unit clash");
+        let Err(e) = build("", "90", &rows) else {
+            panic!("a unit clash is an error");
+        };
         let text = e.to_string();
         assert!(
             text.contains("method-blank MB is in mg/kg but the samples it checks are in"),

@@ -284,6 +284,59 @@ fn an_interrupted_issue_leaves_a_whole_record_or_none() {
 }
 
 #[test]
+fn an_interrupted_run_of_several_reports_leaves_all_or_none() {
+    // The files of every report are synced together and the records of all
+    // are written, and completed, in one transaction each.
+    for (fault, complete) in [
+        ("after-stage", false),
+        ("after-record", false),
+        ("after-publish", true),
+        ("after-complete", true),
+    ] {
+        let t = TestDir::new(&format!("ledger-fault-many-{fault}"));
+        small_ws(&t, 3);
+        let out = Command::new(env!("CARGO_BIN_EXE_limen"))
+            .args(["issue", "ws/b0", "ws/b1", "ws/b2", "--out", "out"])
+            .current_dir(&t.root)
+            .env("LIMEN_FAULT", fault)
+            .env("SOURCE_DATE_EPOCH", "1795000000")
+            .output()
+            .unwrap();
+        assert!(
+            !out.status.success(),
+            "{fault}: the process should have stopped"
+        );
+        for i in 0..3 {
+            let h = ws(&t, &["history", &format!("R-{i}")]);
+            let files = [
+                t.exists(&format!("out/R-{i}.csv")),
+                t.exists(&format!("out/R-{i}.pdf")),
+            ];
+            assert_eq!(
+                h.code,
+                if complete { 0 } else { 2 },
+                "{fault} R-{i}: {}",
+                h.stderr
+            );
+            assert_eq!(files, [complete, complete], "{fault} R-{i}");
+            if complete {
+                let v = ws(&t, &["verify", &format!("out/R-{i}.pdf")]);
+                assert_eq!(v.code, 0, "{fault} R-{i}: {}", v.stdout);
+                assert!(v.stdout.contains("signature: valid"), "{}", v.stdout);
+            }
+        }
+        let again = t.limen(&["issue", "ws/b0", "ws/b1", "ws/b2", "--out", "out"]);
+        assert_eq!(
+            again.code,
+            if complete { 2 } else { 0 },
+            "{fault}: {}",
+            again.stderr
+        );
+        assert!(tmp_files(&t).is_empty(), "{fault}: {:?}", tmp_files(&t));
+    }
+}
+
+#[test]
 fn eight_issues_at_once_all_land() {
     let t = TestDir::new("ledger-concurrent");
     small_ws(&t, 8);

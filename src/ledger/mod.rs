@@ -166,7 +166,7 @@ pub fn verification_code(csv: &[u8]) -> String {
 }
 
 /// What a report was computed from, kept so it can be recomputed later.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Snapshot {
     pub batch_dir: String,
     pub lab_toml: String,
@@ -547,110 +547,25 @@ impl Ledger {
 
     /// Records an issue as pending, in one immediate transaction; refuses a
     /// revision 0 whose report number exists, or a revision already taken.
-    // Long (about 95 lines) on purpose: every statement of the transaction
-    // stays in one place, so what commits together can be read at once.
     pub fn begin(&mut self, rec: &NewRecord<'_>) -> Result<i64, LedgerError> {
+        Ok(self.begin_all(std::slice::from_ref(rec))?[0])
+    }
+
+    /// Records several issues as pending in one immediate transaction (one
+    /// sync for the lot): all are recorded or, on any refusal, none.
+    pub fn begin_all(&mut self, recs: &[NewRecord<'_>]) -> Result<Vec<i64>, LedgerError> {
         let path = self.path.clone();
         let err = sql_error(&path);
-        let h = &rec.report.header;
         let tx = self
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)
             .map_err(err)?;
-        let existing: Option<(u32, String)> = tx
-            .query_row(
-                "SELECT revision, issued_at FROM reports WHERE report = ?1 AND (revision = ?2 OR ?2 = 0) ORDER BY revision DESC LIMIT 1",
-                params![h.report, h.revision],
-                |r| Ok((r.get::<_, i64>(0)? as u32, r.get(1)?)),
-            )
-            .optional()
-            .map_err(err)?;
-        if let Some((revision, issued_at)) = existing {
-            return Err(LedgerError::AlreadyIssued {
-                report: h.report.clone(),
-                revision,
-                issued_at,
-            });
-        }
-        let s = &rec.snapshot;
-        tx.execute(
-            "INSERT INTO reports (report, revision, status, issued_at, local_offset, signatory, tool_version, reason, changed,
-               changed_count, out_dir, batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows,
-               owner_pid, authorised_by, reviewed_by, reviewed_at)
-             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22)",
-            params![
-                h.report,
-                h.revision,
-                h.issued_at.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
-                rec.local_offset,
-                h.signatory,
-                h.tool_version,
-                rec.reason,
-                rec.changed.join("\n"),
-                rec.changed.len() as i64,
-                rec.out_dir.display().to_string(),
-                s.batch_dir,
-                s.lab_toml,
-                s.qc_toml,
-                s.batch_toml,
-                s.results_name,
-                s.results,
-                s.limits_rows,
-                s.spec_rows,
-                std::process::id() as i64,
-                h.authorised_by,
-                h.review.as_ref().map(|r| r.name.as_str()).unwrap_or(""),
-                h.review.as_ref().map(|r| r.at.as_str()).unwrap_or(""),
-            ],
-        )
-        .map_err(err)?;
-        let id = tx.last_insert_rowid();
-        {
-            let mut st = tx
-                .prepare(
-                    "INSERT INTO results (report_id, lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers,
-                                          spec, spec_limit, uncertainty, ld, beta)
-                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)",
-                )
-                .map_err(err)?;
-            for r in rec.report.rows.iter().map(StoredResult::of) {
-                st.execute(params![
-                    id,
-                    r.lab_id,
-                    r.analyte,
-                    r.state,
-                    r.verdict,
-                    r.reported,
-                    r.unit,
-                    r.value,
-                    r.mdl,
-                    r.loq,
-                    r.limits_row,
-                    r.qualifiers,
-                    r.spec,
-                    r.spec_limit,
-                    r.uncertainty,
-                    r.ld,
-                    r.beta,
-                ])
-                .map_err(err)?;
-            }
-            let mut st = tx
-                .prepare("INSERT INTO files (report_id, name, tmp, sha256, size) VALUES (?1, ?2, ?3, ?4, ?5)")
-                .map_err(err)?;
-            for f in &rec.files {
-                st.execute(params![
-                    id,
-                    f.name,
-                    f.tmp.display().to_string(),
-                    f.sha256,
-                    f.size as i64
-                ])
-                .map_err(err)?;
-            }
+        let mut ids = Vec::with_capacity(recs.len());
+        for rec in recs {
+            ids.push(insert_pending(&tx, rec, &path)?);
         }
         tx.commit().map_err(err)?;
-        Ok(id)
+        Ok(ids)
     }
 
     /// Records a review, in one transaction.
@@ -715,21 +630,140 @@ impl Ledger {
 
     /// Marks a pending issue complete, once its files are in place.
     pub fn complete(&mut self, id: i64) -> Result<(), LedgerError> {
-        let n = self
-            .conn
-            .execute(
-                "UPDATE reports SET status = 'issued' WHERE id = ?1 AND status = 'pending'",
-                [id],
-            )
-            .map_err(self.sql())?;
-        if n != 1 {
-            return Err(LedgerError::Sql {
-                path: self.path.clone(),
-                message: format!("the pending record {id} is gone; the issue was not completed"),
-            });
-        }
-        Ok(())
+        self.complete_all(&[id])
     }
+
+    /// Marks pending issues complete in one transaction (one sync).
+    pub fn complete_all(&mut self, ids: &[i64]) -> Result<(), LedgerError> {
+        let path = self.path.clone();
+        let err = sql_error(&path);
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(err)?;
+        for &id in ids {
+            let n = tx
+                .execute(
+                    "UPDATE reports SET status = 'issued' WHERE id = ?1 AND status = 'pending'",
+                    [id],
+                )
+                .map_err(err)?;
+            if n != 1 {
+                return Err(LedgerError::Sql {
+                    path: path.clone(),
+                    message: format!(
+                        "the pending record {id} is gone; the issue was not completed"
+                    ),
+                });
+            }
+        }
+        tx.commit().map_err(err)
+    }
+}
+
+/// One pending record's rows, inside the caller's transaction.
+// Long (about 90 lines) on purpose: every statement of a record stays in
+// one place, so what commits together can be read at once.
+fn insert_pending(
+    tx: &rusqlite::Transaction<'_>,
+    rec: &NewRecord<'_>,
+    path: &str,
+) -> Result<i64, LedgerError> {
+    let err = sql_error(path);
+    let h = &rec.report.header;
+    let existing: Option<(u32, String)> = tx
+            .query_row(
+                "SELECT revision, issued_at FROM reports WHERE report = ?1 AND (revision = ?2 OR ?2 = 0) ORDER BY revision DESC LIMIT 1",
+                params![h.report, h.revision],
+                |r| Ok((r.get::<_, i64>(0)? as u32, r.get(1)?)),
+            )
+            .optional()
+            .map_err(err)?;
+    if let Some((revision, issued_at)) = existing {
+        return Err(LedgerError::AlreadyIssued {
+            report: h.report.clone(),
+            revision,
+            issued_at,
+        });
+    }
+    let s = &rec.snapshot;
+    tx.execute(
+            "INSERT INTO reports (report, revision, status, issued_at, local_offset, signatory, tool_version, reason, changed,
+               changed_count, out_dir, batch_dir, lab_toml, qc_toml, batch_toml, results_name, results, limits_rows, spec_rows,
+               owner_pid, authorised_by, reviewed_by, reviewed_at)
+             VALUES (?1, ?2, 'pending', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22)",
+            params![
+                h.report,
+                h.revision,
+                h.issued_at.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
+                rec.local_offset,
+                h.signatory,
+                h.tool_version,
+                rec.reason,
+                rec.changed.join("\n"),
+                rec.changed.len() as i64,
+                rec.out_dir.display().to_string(),
+                s.batch_dir,
+                s.lab_toml,
+                s.qc_toml,
+                s.batch_toml,
+                s.results_name,
+                s.results,
+                s.limits_rows,
+                s.spec_rows,
+                std::process::id() as i64,
+                h.authorised_by,
+                h.review.as_ref().map(|r| r.name.as_str()).unwrap_or(""),
+                h.review.as_ref().map(|r| r.at.as_str()).unwrap_or(""),
+            ],
+        )
+        .map_err(err)?;
+    let id = tx.last_insert_rowid();
+    {
+        let mut st = tx
+                .prepare(
+                    "INSERT INTO results (report_id, lab_id, analyte, state, verdict, reported, unit, value, mdl, loq, limits_row, qualifiers,
+                                          spec, spec_limit, uncertainty, ld, beta)
+                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)",
+                )
+                .map_err(err)?;
+        for r in rec.report.rows.iter().map(StoredResult::of) {
+            st.execute(params![
+                id,
+                r.lab_id,
+                r.analyte,
+                r.state,
+                r.verdict,
+                r.reported,
+                r.unit,
+                r.value,
+                r.mdl,
+                r.loq,
+                r.limits_row,
+                r.qualifiers,
+                r.spec,
+                r.spec_limit,
+                r.uncertainty,
+                r.ld,
+                r.beta,
+            ])
+            .map_err(err)?;
+        }
+        let mut st = tx
+                .prepare("INSERT INTO files (report_id, name, tmp, sha256, size) VALUES (?1, ?2, ?3, ?4, ?5)")
+                .map_err(err)?;
+        for f in &rec.files {
+            st.execute(params![
+                id,
+                f.name,
+                f.tmp.display().to_string(),
+                f.sha256,
+                f.size as i64
+            ])
+            .map_err(err)?;
+        }
+    }
+    Ok(id)
 }
 
 /// What the ledger says of a file.

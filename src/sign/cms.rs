@@ -104,6 +104,24 @@ pub fn sign(
     // RFC 5652 5.4: the signature covers the DER of the attributes as a
     // SET OF, not as the [0] IMPLICIT field they sit in.
     let signature: DerSignature = key.sign(&attrs.to_der()?);
+    assemble(chain, attrs, signature.as_bytes())
+}
+
+/// The longest `sign` can return for this chain: the same structure with
+/// a signature of the longest DER form an ECDSA P-256 signature takes (72
+/// bytes: two 33-byte integers in a SEQUENCE), with no signing.
+pub fn max_len(chain: &[Certificate]) -> Result<usize, der::Error> {
+    let leaf = chain.first().ok_or(der::ErrorKind::Failed)?;
+    let attrs = signed_attributes(leaf, &[0; 32])?;
+    Ok(assemble(chain, attrs, &[0; 72])?.len())
+}
+
+fn assemble(
+    chain: &[Certificate],
+    attrs: SetOfVec<Attribute>,
+    signature: &[u8],
+) -> Result<Vec<u8>, der::Error> {
+    let leaf = chain.first().ok_or(der::ErrorKind::Failed)?;
     let signer = SignerInfo {
         version: CmsVersion::V1,
         sid: SignerIdentifier::IssuerAndSerialNumber(IssuerAndSerialNumber {
@@ -113,7 +131,7 @@ pub fn sign(
         digest_alg: alg(SHA256),
         signed_attrs: Some(attrs),
         signature_algorithm: alg(ECDSA_SHA256),
-        signature: OctetString::new(signature.as_bytes().to_vec())?,
+        signature: OctetString::new(signature.to_vec())?,
         unsigned_attrs: None,
     };
     let certs = chain
@@ -277,6 +295,8 @@ mod tests {
         // Zero padding after the DER, as a PDF signature hole has.
         der.extend([0; 40]);
         assert_eq!(check(&der, &digest).unwrap(), c);
+        assert!(der.len() - 40 <= max_len(std::slice::from_ref(&c)).unwrap());
+        assert!(der.len() - 40 + 3 >= max_len(std::slice::from_ref(&c)).unwrap());
         // RFC 6979: the same key and message give the same signature.
         assert_eq!(
             sign(&k, std::slice::from_ref(&c), &digest).unwrap(),

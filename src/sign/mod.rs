@@ -38,10 +38,9 @@ pub struct Identity {
 /// same bytes, key and fields give the same output (RFC 6979 nonces, no
 /// signing-time attribute).
 pub fn sign_pdf(pdf: &[u8], id: &Identity, f: &Fields<'_>) -> Result<Vec<u8>, SignError> {
-    // The CMS's length is known but for the DER signature, which varies by
-    // a few bytes; a probe with a dummy digest sizes the hole.
-    let probe = cms::sign(&id.key, &id.chain, &[0; 32]).map_err(SignError::der)?;
-    let room = (probe.len() + 16) * 2;
+    // The CMS's length is known but for the DER signature, which is at
+    // most 72 bytes; the hole is sized for that.
+    let room = cms::max_len(&id.chain).map_err(SignError::der)? * 2;
     let mut prepared = pdf::prepare(pdf, room, f).map_err(SignError::Pdf)?;
     let mut h = Sha256::new();
     for part in prepared.signed() {
