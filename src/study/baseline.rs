@@ -140,4 +140,69 @@ mod tests {
         assert!((r.conc_at_10.unwrap() - 10.0 * r.noise_sd / 2.5).abs() < 1e-12);
         assert!(parse_range("5:1").is_err());
     }
+
+    #[test]
+    fn ranges_need_two_finite_ends_in_order() {
+        assert_eq!(parse_range("0:14").unwrap(), (0.0, 14.0));
+        assert_eq!(parse_range(" 1.5 : 2 ").unwrap(), (1.5, 2.0));
+        for bad in ["5:5", "5:1", "NaN:5", "1:inf", "1-5", "a:b"] {
+            assert!(parse_range(bad).is_err(), "{bad}");
+        }
+    }
+
+    fn trace(points: &[(f64, f64)]) -> String {
+        let mut csv = String::from("x,signal\n");
+        for (x, y) in points {
+            csv.push_str(&format!("{x},{y}\n"));
+        }
+        csv
+    }
+
+    #[test]
+    fn the_window_is_inclusive_and_needs_five_points() {
+        // A flat baseline with noise +1, -1, ... (population arithmetic by hand).
+        let pts: Vec<(f64, f64)> = (0..10)
+            .map(|x| (x as f64, if x % 2 == 0 { 11.0 } else { 9.0 }))
+            .collect();
+        let csv = trace(&pts);
+        // 0..=4 is five points: accepted; 0..=3.5 is four: refused.
+        let r = compute("t.csv", csv.as_bytes(), (0.0, 4.0), None, None).unwrap();
+        assert_eq!(r.points, 5);
+        let e = compute("t.csv", csv.as_bytes(), (0.0, 3.5), None, None).unwrap_err();
+        assert!(e.to_string().contains("4 point(s)"), "{e}");
+        // The signal levels are exactly 3 and 10 times the noise SD.
+        assert_eq!(r.signal_at_3, 3.0 * r.noise_sd);
+        assert_eq!(r.signal_at_10, 10.0 * r.noise_sd);
+        assert!(r.noise_sd > 0.5, "{}", r.noise_sd);
+    }
+
+    #[test]
+    fn the_peak_is_the_highest_point_inside_its_range_only() {
+        let mut pts: Vec<(f64, f64)> = (0..30)
+            .map(|x| (x as f64, if x % 2 == 0 { 11.0 } else { 9.0 }))
+            .collect();
+        pts[20].1 = 60.0; // the peak, inside 18:22
+        pts[27].1 = 500.0; // a larger spike outside it
+        let csv = trace(&pts);
+        let r = compute(
+            "t.csv",
+            csv.as_bytes(),
+            (0.0, 9.0),
+            Some((18.0, 22.0)),
+            None,
+        )
+        .unwrap();
+        let (x, height, _) = r.peak.unwrap();
+        assert_eq!(x, 20.0);
+        assert!((height - 50.0).abs() < 1.0, "{height}");
+        let e = compute(
+            "t.csv",
+            csv.as_bytes(),
+            (0.0, 9.0),
+            Some((40.0, 41.0)),
+            None,
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("no points in the peak range"), "{e}");
+    }
 }
