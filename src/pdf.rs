@@ -28,6 +28,9 @@ pub struct Face {
     bytes: &'static [u8],
     parsed: ParsedFont,
     advance: HashMap<char, f32>,
+    /// `advance` for U+0000 to U+00FF, control characters measured as a
+    /// space (as `clean` shows them): most text, without hashing.
+    latin: [f32; 256],
     missing: f32,
 }
 
@@ -47,10 +50,19 @@ impl Face {
             })
             .collect::<HashMap<_, _>>();
         let missing = advance.get(&'?').copied().unwrap_or(0.5);
+        let mut latin = [missing; 256];
+        for (k, w) in latin.iter_mut().enumerate() {
+            let c = char::from(k as u8);
+            let c = if c.is_control() { ' ' } else { c };
+            if let Some(a) = advance.get(&c) {
+                *w = *a;
+            }
+        }
         Ok(Face {
             bytes,
             parsed,
             advance,
+            latin,
             missing,
         })
     }
@@ -59,9 +71,14 @@ impl Face {
         self.advance.contains_key(&c)
     }
 
+    /// The advance of `text` as `clean` would show it.
     fn width(&self, text: &str) -> f32 {
         text.chars()
-            .map(|c| self.advance.get(&c).copied().unwrap_or(self.missing))
+            // Control characters (Unicode Cc) all lie below U+0100.
+            .map(|c| match self.latin.get(c as usize) {
+                Some(w) => *w,
+                None => self.advance.get(&c).copied().unwrap_or(self.missing),
+            })
             .sum()
     }
 
@@ -137,7 +154,7 @@ impl Clone for PdfError {
 
 impl Measure for Fonts {
     fn width(&self, text: &str, size: f32, bold: bool) -> f32 {
-        self.face(bold).width(&clean(text)) * size
+        self.face(bold).width(text) * size
     }
 }
 

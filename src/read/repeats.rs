@@ -7,9 +7,10 @@
 
 use std::collections::HashMap;
 
-/// At least 2^26 bits (8 MB, touched only as keys arrive): about one false
-/// "perhaps seen" in a million keys for files up to a few million rows.
-const MIN_BITS: u64 = 1 << 26;
+/// At least 2^16 bits (8 KB). A filter is allocated per batch, so a run
+/// of many small batches must not zero megabytes for each; the size grows
+/// with the file (see `for_len`).
+const MIN_BITS: u64 = 1 << 16;
 const PROBES: u64 = 6;
 
 pub struct Repeats {
@@ -32,7 +33,9 @@ fn hashes(key: &[u8]) -> (u64, u64) {
 }
 
 impl Repeats {
-    /// A filter sized for a file of `len` bytes.
+    /// A filter sized for a file of `len` bytes: a 100 MB file (about a
+    /// million rows) gets 2^26 bits, about one false "perhaps seen" in a
+    /// million keys.
     pub fn for_len(len: u64) -> Repeats {
         // About 24 bits per row of at least 40 bytes.
         let bits = (len / 40 * 24).next_power_of_two().max(MIN_BITS);
@@ -95,7 +98,9 @@ mod tests {
 
     #[test]
     fn a_repeat_is_always_a_candidate_and_new_keys_rarely_are() {
-        let mut r = Repeats::for_len(0);
+        // A 100 MB file: 2^26 bits.
+        let mut r = Repeats::for_len(100_000_000);
+        assert_eq!(r.bits.len() as u64 * 64, 1 << 26);
         let mut false_alarms = 0;
         for i in 0..200_000 {
             if r.note(&format!("S{i}\u{1f}pb\u{1f}sample"), i) {
@@ -106,6 +111,15 @@ mod tests {
         // Expected false alarms at 200,000 keys in 2^26 bits, 6 probes:
         // (1 − e^(−6·200000/2^26))^6 ≈ 3e-11 per key, so none.
         assert_eq!(false_alarms, 0);
+    }
+
+    #[test]
+    fn a_small_file_gets_a_small_filter_that_still_finds_repeats() {
+        let mut r = Repeats::for_len(400);
+        assert_eq!(r.bits.len() as u64 * 64, MIN_BITS);
+        assert!(!r.note("S1\u{1f}pb\u{1f}sample", 2));
+        assert!(r.note("S1\u{1f}pb\u{1f}sample", 3));
+        assert!(r.candidates.contains_key("S1\u{1f}pb\u{1f}sample"));
     }
 
     #[test]
