@@ -174,6 +174,10 @@ mod tests {
         assert_eq!(r.signal_at_3, 3.0 * r.noise_sd);
         assert_eq!(r.signal_at_10, 10.0 * r.noise_sd);
         assert!(r.noise_sd > 0.5, "{}", r.noise_sd);
+        // With a calibration slope, concentration = signal / slope.
+        let r = compute("t.csv", csv.as_bytes(), (0.0, 9.0), None, Some(2.5)).unwrap();
+        assert_eq!(r.conc_at_3, Some(r.signal_at_3 / 2.5));
+        assert_eq!(r.conc_at_10, Some(r.signal_at_10 / 2.5));
     }
 
     #[test]

@@ -210,4 +210,15 @@ mod tests {
         assert_eq!(fit(&[1.0, 2.0], &[3.0, 5.0]).map(|l| l.n), None);
         assert!(fit(&[1.0, 2.0, 3.0], &[3.0, 5.0]).is_none());
     }
+
+    #[test]
+    fn a_line_through_exact_points_has_no_residual() {
+        // y = 1 + 2x at x = 1..4: slope 2, intercept 1, every residual 0.
+        let l = fit(&[1.0, 2.0, 3.0, 4.0], &[3.0, 5.0, 7.0, 9.0]).unwrap();
+        assert_eq!((l.slope, l.intercept), (2.0, 1.0));
+        assert_eq!(l.residual_sd, 0.0);
+        // One point off by 1 gives a positive residual SD.
+        let l = fit(&[1.0, 2.0, 3.0, 4.0], &[3.0, 5.0, 8.0, 9.0]).unwrap();
+        assert!(l.residual_sd > 0.0);
+    }
 }
