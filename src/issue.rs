@@ -228,7 +228,7 @@ struct Entry<'r> {
 
 /// Stages, records, publishes and completes reports whose numbers and
 /// file names have passed `preflight`, each step once for all of them: one
-/// file-system sync for the staged files, one transaction per ledger for
+/// pass of syncs after all staged files are written, one transaction per ledger for
 /// the pending records, one directory sync for the new names, one
 /// transaction per ledger to complete. A crash at any point leaves each
 /// report complete or absent (the ledger settles pending records on open).
@@ -251,7 +251,7 @@ fn record_all(
             }
         }
     }
-    if let Err(e) = crate::output::sync_staged(dir, &staged.iter().collect::<Vec<_>>()) {
+    if let Err(e) = crate::output::sync_staged(&staged.iter().collect::<Vec<_>>()) {
         discard_all(&staged);
         return Err(e.into());
     }
