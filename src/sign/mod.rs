@@ -175,30 +175,7 @@ fn pdf_date(m: &str) -> String {
 mod tests {
     use super::*;
 
-    /// A one-page PDF with a classic table, as the certificate writer
-    /// lays one out.
-    fn tiny() -> Vec<u8> {
-        let objs = [
-            "<</Type/Pages/Count 1/Kids[2 0 R]>>",
-            "<</Type/Page/MediaBox[0 0 10 10]/Parent 1 0 R/Annots[]>>",
-            "<</Type/Catalog/Pages 1 0 R>>",
-        ];
-        let mut out = b"%PDF-1.3\n".to_vec();
-        let mut offs = Vec::new();
-        for (i, o) in objs.iter().enumerate() {
-            offs.push(out.len());
-            out.extend_from_slice(format!("{} 0 obj\n{o}\nendobj\n", i + 1).as_bytes());
-        }
-        let x = out.len();
-        out.extend_from_slice(b"xref\n0 4\n0000000000 65535 f \n");
-        for o in offs {
-            out.extend_from_slice(format!("{o:010} 00000 n \n").as_bytes());
-        }
-        out.extend_from_slice(
-            format!("trailer\n<</Root 3 0 R/Size 4>>\nstartxref\n{x}\n%%EOF").as_bytes(),
-        );
-        out
-    }
+    use super::pdf::tests::tiny;
 
     fn identity() -> Identity {
         let key = p256::ecdsa::SigningKey::from_bytes(&[11; 32].into()).unwrap();

@@ -387,12 +387,12 @@ pub fn locate(pdf: &[u8]) -> Result<Option<Found>, String> {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
 
     /// A minimal one-page PDF with a classic table, as the certificate
     /// writer lays one out.
-    fn tiny() -> Vec<u8> {
+    pub(crate) fn tiny() -> Vec<u8> {
         let objs = [
             "<</Type/Pages/Count 1/Kids[2 0 R]>>",
             "<</Type/Page/MediaBox[0 0 10 10]/Parent 1 0 R/Annots[]>>",

@@ -67,6 +67,16 @@ impl TestDir {
         assert_eq!(r.code, 0, "keys new: {}", r.stderr);
     }
 
+    /// Neither a file in out/ nor a ledger record of `report` in ws/.
+    pub fn nothing_issued(&self, report: &str) {
+        let files = std::fs::read_dir(self.path("out"))
+            .map(|d| d.count())
+            .unwrap_or(0);
+        assert_eq!(files, 0, "no report file is written");
+        let h = self.limen(&["history", report, "--workspace", "ws"]);
+        assert_eq!(h.code, 2, "nothing recorded: {}", h.stdout);
+    }
+
     /// Copies the repository's demo workspace into this folder.
     pub fn demo_workspace(&self, rel: &str) {
         copy_tree(&repo().join("demo-batches"), &self.root.join(rel));
