@@ -166,6 +166,21 @@ pub fn evaluate<'a>(
     revision: u32,
     run: &RunInfo,
 ) -> Result<Evaluation<'a>, EvalError> {
+    evaluate_watched(ws, batch, revision, run, &mut |_| {})
+}
+
+/// How often the checking pass says how far it has read.
+pub const TICK_ROWS: u64 = 8192;
+
+/// As `evaluate`, telling `rows_read` every `TICK_ROWS` rows how many rows
+/// the checking pass has read, for a progress display.
+pub fn evaluate_watched<'a>(
+    ws: &'a Workspace,
+    batch: &'a Batch,
+    revision: u32,
+    run: &RunInfo,
+    rows_read: &mut dyn FnMut(u64),
+) -> Result<Evaluation<'a>, EvalError> {
     let lab = &ws.lab;
     let m = &batch.manifest;
     let header = Header {
@@ -210,7 +225,12 @@ pub fn evaluate<'a>(
     let mut specs_used: std::collections::BTreeMap<u64, crate::read::SpecRow> = Default::default();
     let mut methods: Vec<Arc<str>> = Vec::new();
     let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
+    let mut read = 0u64;
     each_result_in(&batch.results_file, batch.source(), Pass::Check, |row| {
+        read += 1;
+        if read % TICK_ROWS == 0 {
+            rows_read(read);
+        }
         if row.kind != Kind::Sample {
             return Ok(());
         }

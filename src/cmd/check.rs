@@ -1,7 +1,9 @@
+use super::progress::Progress;
 use super::{blocked_code, colour_stdout, load, run_info};
 use limen::Error;
 use limen::render::csv::Rows;
 use limen::render::table::Table;
+use limen::report::TICK_ROWS;
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -26,19 +28,39 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let (ws, batch) = load(&a.batch, a.workspace.as_deref())?;
     let run = run_info()?;
     let mut out = std::io::stdout().lock();
-    match a.format {
+    let progress = Progress::counting();
+    progress.message("rows checked");
+    let mut e = limen::report::evaluate_watched(&ws, &batch, 0, &run, &mut |n| progress.at(n))?;
+    // Each later pass over the results, as a bar of the client results.
+    let pass =
+        |e: &mut limen::report::Evaluation<'_>,
+         what: &str,
+         each: &mut dyn FnMut(limen::report::ReportRow) -> Result<(), Error>| {
+            progress.phase(e.count() as u64, what);
+            let mut n = 0u64;
+            e.each_row(|_, r| {
+                n += 1;
+                if n % TICK_ROWS == 0 {
+                    progress.at(n);
+                }
+                each(r)
+            })
+        };
+    let code = match a.format {
         Format::Table => {
             // Two passes: the column widths, then the lines.
-            let mut e = limen::report::evaluate(&ws, &batch, 0, &run)?;
             let mut table = Table::new(colour_stdout());
-            e.each_row(|_, r| {
+            pass(&mut e, "results sized", &mut |r| {
                 table.widen(&r);
-                Ok::<(), Error>(())
+                Ok(())
             })?;
             let mut w = std::io::BufWriter::with_capacity(1 << 16, &mut out);
             w.write_all(table.head(e.header()).as_bytes())
                 .map_err(Error::stdout)?;
-            e.each_row(|_, r| w.write_all(table.row(&r).as_bytes()).map_err(Error::stdout))?;
+            pass(&mut e, "results written", &mut |r| {
+                w.write_all(table.row(&r).as_bytes()).map_err(Error::stdout)
+            })?;
+            progress.finish();
             let report = e.finish();
             w.write_all(table.tail(&report).as_bytes())
                 .and_then(|()| w.flush())
@@ -48,7 +70,6 @@ pub fn run(a: Args) -> Result<i32, Error> {
         Format::Csv => {
             // Every input error is found before the first line is written;
             // then each row goes out as it is classified.
-            let mut e = limen::report::evaluate(&ws, &batch, 0, &run)?;
             let header = e.header().clone();
             let mut rows = Rows::new(
                 &header,
@@ -56,8 +77,11 @@ pub fn run(a: Args) -> Result<i32, Error> {
                 std::io::BufWriter::with_capacity(1 << 16, &mut out),
             )
             .map_err(Error::stdout)?;
-            e.each_row(|_, r| rows.row(&r).map_err(Error::stdout))?;
+            pass(&mut e, "results written", &mut |r| {
+                rows.row(&r).map_err(Error::stdout)
+            })?;
             rows.finish().map_err(Error::stdout)?;
+            progress.finish();
             let report = e.finish();
             for p in &report.problems {
                 eprintln!("blocked: {p}");
@@ -65,5 +89,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             }
             Ok(blocked_code(report.is_blocked()))
         }
-    }
+    };
+    progress.finish();
+    code
 }

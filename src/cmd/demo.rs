@@ -231,7 +231,7 @@ fn impact_and_reissue(
         lab: None,
         manifest: None,
     };
-    let (checked, affected, _) = impact(ledger, &against, None, run)?;
+    let (checked, affected, _) = impact(ledger, &against, None, run, &mut |_, _| {})?;
     print!(
         "{}",
         super::impact::table(checked, &affected, &ws.register.file, &ws.specs.file)

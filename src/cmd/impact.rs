@@ -1,3 +1,4 @@
+use super::progress::Progress;
 use super::run_info;
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
@@ -72,7 +73,18 @@ pub fn run(a: Args) -> Result<i32, Error> {
         lab: None,
         manifest: None,
     };
-    let (checked, affected, failed) = impact(&ledger, &against, since, &run)?;
+    let progress = Progress::counting();
+    progress.message("reports recomputed");
+    let mut sized = false;
+    let found = impact(&ledger, &against, since, &run, &mut |n, of| {
+        if !sized {
+            progress.phase(of as u64, "reports recomputed");
+            sized = true;
+        }
+        progress.at(n as u64);
+    });
+    progress.finish();
+    let (checked, affected, failed) = found?;
     match a.format {
         Format::Csv => impact_csv(&affected).map_err(Error::stdout)?,
         Format::Table => super::say(&table(

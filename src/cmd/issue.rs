@@ -1,3 +1,4 @@
+use super::progress::Progress;
 use super::run_info;
 use limen::Error;
 use limen::error::{EXIT_BLOCKED, EXIT_OK};
@@ -31,7 +32,7 @@ pub struct Args {
 pub fn run(a: Args) -> Result<i32, Error> {
     let run = run_info()?;
     let fault = super::fault()?;
-    let progress = Progress::new(a.batches.len() as u64 * 2);
+    let progress = Progress::steps(a.batches.len() as u64 * 2, a.batches.len() > 1);
     let (reports, workspaces) = evaluate(&a, &run, &progress)?;
     let blocked: Vec<_> = reports
         .iter()
@@ -121,52 +122,6 @@ pub fn run(a: Args) -> Result<i32, Error> {
     progress.finish();
     super::say(&lines)?;
     Ok(EXIT_OK)
-}
-
-/// A progress bar on stderr for runs of several batches or of more than
-/// about a second; nothing at all when stderr is not a terminal.
-struct Progress {
-    bar: Option<indicatif::ProgressBar>,
-    start: std::time::Instant,
-    several: bool,
-}
-
-impl Progress {
-    fn new(steps: u64) -> Progress {
-        use std::io::IsTerminal;
-        let bar = std::io::stderr().is_terminal().then(|| {
-            let bar = indicatif::ProgressBar::with_draw_target(
-                Some(steps),
-                indicatif::ProgressDrawTarget::hidden(),
-            );
-            if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} {msg}")
-            {
-                bar.set_style(style);
-            }
-            bar
-        });
-        Progress {
-            bar,
-            start: std::time::Instant::now(),
-            several: steps > 2,
-        }
-    }
-
-    fn step(&self, message: &str) {
-        if let Some(bar) = &self.bar {
-            if bar.is_hidden() && (self.several || self.start.elapsed().as_millis() > 1000) {
-                bar.set_draw_target(indicatif::ProgressDrawTarget::stderr());
-            }
-            bar.set_message(message.to_string());
-            bar.inc(1);
-        }
-    }
-
-    fn finish(&self) {
-        if let Some(bar) = &self.bar {
-            bar.finish_and_clear();
-        }
-    }
 }
 
 type Evaluated = (

@@ -12,6 +12,7 @@ mod impact;
 mod init;
 mod issue;
 mod keys;
+mod progress;
 mod reissue;
 mod review;
 mod study;

@@ -306,17 +306,20 @@ pub struct Impact {
 /// Recomputes the latest revision of every issued report (issued since
 /// `since`, if given) and returns those a re-issue would change (by
 /// `changes`, the comparison `reissue` makes), and those that could not be
-/// recomputed.
+/// recomputed. `done` hears, before each report, how many of how many are
+/// done.
 pub fn impact(
     ledger: &super::Ledger,
     against: &Against<'_>,
     since: Option<chrono::NaiveDate>,
     run: &RunInfo,
+    done: &mut dyn FnMut(usize, usize),
 ) -> Result<(usize, Vec<Impact>, Vec<String>), Error> {
     let mut affected = Vec::new();
     let mut failed = Vec::new();
     let all = ledger.latest_all(since)?;
-    for issued in &all {
+    for (n, issued) in all.iter().enumerate() {
+        done(n, all.len());
         let snap = ledger.snapshot(issued.id)?;
         let report = match recompute(&issued.report, &snap, against, issued.revision, run) {
             Ok((_, _, r)) => r,

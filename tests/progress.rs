@@ -1,0 +1,82 @@
+//! The progress bar: on stderr when stderr is a terminal and the run is
+//! long, never on stdout, never when stderr is piped.
+
+mod util;
+use std::process::Command;
+use util::TestDir;
+
+/// Rows enough for a few seconds' run (the bar waits a second before it
+/// shows): an optimised build is some twenty times faster.
+const ROWS: usize = if cfg!(debug_assertions) {
+    30_000
+} else {
+    600_000
+};
+
+fn long_batch() -> TestDir {
+    let t = TestDir::new("progress");
+    t.demo_workspace("ws");
+    let mut body = String::from(
+        "lab_id,client_id,description,kind,analyte,matrix,method,reading,reading_unit,dilution,mass_g,volume_ml,analyzed_on,spec,uncertainty_pct\n",
+    );
+    for i in 0..ROWS {
+        body.push_str(&format!(
+            "L{i:06},C{i},Paint chip,sample,Pb,paint,6010D,{}.5,ug/L,1,0.25,50,2026-11-13,US-PAINT-PB,\n",
+            i % 900
+        ));
+    }
+    t.write("ws/big/results.csv", body);
+    t.write(
+        "ws/big/batch.toml",
+        "batch = \"BIG\"\nreport = \"R-BIG\"\nclient_name = \"Client\"\nclient_address = \"Addr\"\nclient_contact = \"Contact\"\nreceived_on = 2026-11-10\nresults = \"results.csv\"\n",
+    );
+    t.write("ws/qc.toml", "required = []\n");
+    t
+}
+
+#[test]
+fn the_bar_goes_to_a_terminal_stderr_only_and_never_into_the_csv() {
+    let t = long_batch();
+    let piped = t.limen(&["check", "ws/big", "--format", "csv"]);
+    assert_eq!(piped.code, 0, "{}", piped.stderr);
+    assert_eq!(piped.stderr, "", "stderr is a pipe: no bar");
+    assert!(piped.stdout.starts_with("report,revision,lab_id"));
+
+    // `script` (util-linux) runs the command on a pseudo-terminal; stdout is
+    // redirected to a file inside it, so only stderr is the terminal.
+    let inner = format!(
+        "'{}' check ws/big --format csv > out.csv",
+        env!("CARGO_BIN_EXE_limen")
+    );
+    let out = Command::new("script")
+        .args(["-qfec", &inner, "typescript"])
+        .current_dir(&t.root)
+        .env("SOURCE_DATE_EPOCH", "1795000000")
+        .env("NO_COLOR", "1")
+        .stdin(std::process::Stdio::null())
+        .output()
+        .expect("script (util-linux) is installed; .ci/run makes sure");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let terminal = std::fs::read_to_string(t.path("typescript")).unwrap();
+    assert!(terminal.contains("rows checked"), "{terminal}");
+    let whole = format!("{ROWS}")
+        .as_bytes()
+        .rchunks(3)
+        .rev()
+        .map(|c| std::str::from_utf8(c).unwrap())
+        .collect::<Vec<_>>()
+        .join(",");
+    assert!(
+        terminal.contains(&format!("/{whole} results written")),
+        "{terminal}"
+    );
+    let csv = std::fs::read_to_string(t.path("out.csv")).unwrap();
+    assert_eq!(
+        csv, piped.stdout,
+        "the CSV is the same with a bar on stderr"
+    );
+}
