@@ -20,6 +20,11 @@ pub enum EvalError {
     NoUncertainty { at: Loc },
     #[error("{at}: arithmetic overflow applying the decision rule")]
     Overflow { at: Loc },
+    #[error("the temporary file for classified rows in {}: {source}", dir.display())]
+    Scratch {
+        dir: std::path::PathBuf,
+        source: std::io::Error,
+    },
 }
 
 impl EvalError {
@@ -31,6 +36,9 @@ impl EvalError {
                 "give uncertainty_pct (U at k = 2, % of the result) for every quantified result with a limit, or use decision_rule = \"simple\"".into()
             }
             EvalError::Overflow { .. } => "check the numbers on this row".into(),
+            EvalError::Scratch { .. } => {
+                "a large batch keeps its classified rows in the temporary folder until they are written: free space there, or set TMPDIR to a folder with room".into()
+            }
         }
     }
 }

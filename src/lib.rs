@@ -25,6 +25,7 @@ pub mod render;
 pub mod report;
 pub mod resolve;
 pub mod sign;
+pub mod spool;
 pub mod starter;
 pub mod study;
 pub mod templates;

@@ -372,11 +372,6 @@ impl Gather {
         }
     }
 
-    /// The number of client results taken in.
-    pub fn count(&self) -> usize {
-        self.count
-    }
-
     fn group(&self, analyte: &str, method: &str) -> Option<&Group> {
         self.groups
             .iter()

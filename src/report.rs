@@ -129,7 +129,14 @@ pub fn build(
     revision: u32,
     run: &RunInfo,
 ) -> Result<Report, EvalError> {
-    let mut e = evaluate(ws, batch, revision, run)?;
+    let mut e = evaluate_into(
+        ws,
+        batch,
+        revision,
+        run,
+        &mut |_| {},
+        crate::spool::Spool::in_memory(),
+    )?;
     let mut rows = Vec::with_capacity(e.count());
     e.each_row(|_, r| {
         rows.push(r);
@@ -140,21 +147,19 @@ pub fn build(
     Ok(report)
 }
 
-/// A batch evaluated but for its rows: the header, the QC checks as judged
-/// and the plan that qualifies each result. `each_row` then reads the
-/// results again and hands each finished row on, so a batch of any length
-/// is written in flat memory; every input error has been found before the
+/// A batch evaluated but for its rows: the header, the QC checks as judged,
+/// the plan that qualifies each result and the classified rows spooled.
+/// `each_row` then hands each finished row on, so a batch of any length is
+/// written in flat memory; every input error has been found before the
 /// first row is handed on.
-pub struct Evaluation<'a> {
-    ws: &'a Workspace,
-    batch: &'a Batch,
+pub struct Evaluation {
     header: Header,
     qc: Vec<ResultRow>,
     plan: crate::qc::Plan,
     problems: Vec<Problem>,
     limits_used: Vec<crate::read::LimitRow>,
     specs_used: Vec<crate::read::SpecRow>,
-    count: usize,
+    rows: crate::spool::Spool,
 }
 
 /// Reads the batch's QC rows, then every row once: the client results are
@@ -165,7 +170,7 @@ pub fn evaluate<'a>(
     batch: &'a Batch,
     revision: u32,
     run: &RunInfo,
-) -> Result<Evaluation<'a>, EvalError> {
+) -> Result<Evaluation, EvalError> {
     evaluate_watched(ws, batch, revision, run, &mut |_| {})
 }
 
@@ -180,7 +185,25 @@ pub fn evaluate_watched<'a>(
     revision: u32,
     run: &RunInfo,
     rows_read: &mut dyn FnMut(u64),
-) -> Result<Evaluation<'a>, EvalError> {
+) -> Result<Evaluation, EvalError> {
+    evaluate_into(
+        ws,
+        batch,
+        revision,
+        run,
+        rows_read,
+        crate::spool::Spool::new(),
+    )
+}
+
+fn evaluate_into<'a>(
+    ws: &'a Workspace,
+    batch: &'a Batch,
+    revision: u32,
+    run: &RunInfo,
+    rows_read: &mut dyn FnMut(u64),
+    mut rows: crate::spool::Spool,
+) -> Result<Evaluation, EvalError> {
     let lab = &ws.lab;
     let m = &batch.manifest;
     let header = Header {
@@ -253,6 +276,7 @@ pub fn evaluate_watched<'a>(
                 }
                 let out = classify_row(row, &r, &header, lab.not_detected_style, &mut ld_factors)?;
                 gather.sample(&out);
+                rows.push(&out)?;
             }
         }
         Ok::<(), EvalError>(())
@@ -261,15 +285,13 @@ pub fn evaluate_watched<'a>(
     let mut header = header;
     header.methods = methods_used(&lab.methods, &methods);
     Ok(Evaluation {
-        ws,
-        batch,
         header,
         qc,
         plan,
         problems,
         limits_used: limits_used.into_values().collect(),
         specs_used: specs_used.into_values().collect(),
-        count: gather.count(),
+        rows,
     })
 }
 
@@ -291,50 +313,36 @@ impl<E> From<crate::read::ReadError> for RowError<E> {
     }
 }
 
-impl Evaluation<'_> {
+impl Evaluation {
     pub fn header(&self) -> &Header {
         &self.header
     }
 
     /// The number of client results.
     pub fn count(&self) -> usize {
-        self.count
+        self.rows.len()
     }
 
-    /// Reads the results again and hands each client result, classified and
-    /// qualified, to `each` in file order. May be run more than once (a
-    /// table sizes its columns, then prints); `finish` reflects the last run.
+    /// Hands each client result, classified and qualified, to `each` in
+    /// file order. May be run more than once (a table sizes its columns,
+    /// then prints); `finish` reflects the last run.
     pub fn each_row<E: From<EvalError>>(
         &mut self,
         mut each: impl FnMut(&Header, ReportRow) -> Result<(), E>,
     ) -> Result<(), E> {
         self.plan.restart();
-        let (ws, header, plan) = (self.ws, &self.header, &mut self.plan);
-        let nd_style = ws.lab.not_detected_style;
-        let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
+        let (header, plan) = (&self.header, &mut self.plan);
         let mut index = 0usize;
-        let mut pass = |row: ResultRow| -> Result<(), RowError<E>> {
-            if row.kind != Kind::Sample {
-                return Ok(());
-            }
-            if let Resolution::Resolved(r) = resolve::resolve(&row, ws).map_err(EvalError::from)? {
-                let mut out = classify_row(row, &r, header, nd_style, &mut ld_factors)?;
+        self.rows
+            .replay(|mut out: ReportRow| -> Result<(), RowError<E>> {
                 plan.qualify(index, &mut out);
                 index += 1;
-                each(header, out).map_err(RowError::Each)?;
-            }
-            Ok(())
-        };
-        each_result_in(
-            &self.batch.results_file,
-            self.batch.source(),
-            Pass::Again,
-            &mut pass,
-        )
-        .map_err(|e| match e {
-            RowError::Eval(e) => E::from(e),
-            RowError::Each(e) => e,
-        })
+                each(header, out).map_err(RowError::Each)
+            })
+            .map_err(|e| match e {
+                RowError::Eval(e) => E::from(e),
+                RowError::Each(e) => e,
+            })
     }
 
     /// The report model, without its rows (which `each_row` handed on).

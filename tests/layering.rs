@@ -154,6 +154,7 @@ fn computation_never_imports_rendering_output_or_the_ledger() {
         "resolve",
         "classify",
         "evaluated",
+        "spool",
         "qc",
         "problem",
         "report",

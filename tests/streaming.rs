@@ -170,3 +170,55 @@ fn an_error_on_the_last_of_100000_rows_names_it_and_writes_nothing() {
         r.stderr
     );
 }
+
+/// The QC mix and enough further samples that the classified rows pass
+/// the few megabytes kept in memory and go to the temporary file.
+fn spilling(t: &TestDir) {
+    t.demo_workspace("ws");
+    let mut rows = samples();
+    rows.extend(qc_rows());
+    for i in 0..30_000 {
+        rows.push(format!(
+            "X{i:05},C{i},Chip {i},sample,Pb,paint,6010D,{}.5,µg/L,{},0.100,50,2026-11-13,US-PAINT-PB,10,,\n",
+            (i * 37) % 1900,
+            1 + i % 3
+        ));
+    }
+    batch(t, "long", &rows);
+}
+
+#[test]
+fn rows_kept_in_the_temporary_file_give_the_same_bytes_as_in_memory() {
+    let t = TestDir::new("stream-spill");
+    spilling(&t);
+    let (csv, table) = in_memory(&t, "long").unwrap();
+    let r = t.limen(&["check", "ws/long", "--format", "csv"]);
+    assert_eq!(r.code, 3, "{}", r.stderr);
+    assert_eq!(r.stdout.lines().count(), 30_013);
+    assert_eq!(r.stdout, csv);
+    assert!(r.stdout.contains("blank-affected"));
+    let r = t.limen(&["check", "ws/long"]);
+    let table = table.replace(&format!("{}/", t.root.display()), "");
+    assert_eq!(r.stdout, table);
+}
+
+#[test]
+fn no_room_for_the_temporary_file_is_an_error_before_any_output() {
+    let t = TestDir::new("stream-no-tmp");
+    spilling(&t);
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_limen"))
+        .args(["check", "ws/long", "--format", "csv"])
+        .current_dir(&t.root)
+        .env("SOURCE_DATE_EPOCH", "1795000000")
+        .env("TMPDIR", t.path("no-such-folder"))
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(out.stdout.is_empty());
+    assert!(
+        stderr.contains("no-such-folder") && stderr.contains("hint: "),
+        "{stderr}"
+    );
+    assert!(stderr.contains("TMPDIR"), "{stderr}");
+}

@@ -33,7 +33,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let mut e = limen::report::evaluate_watched(&ws, &batch, 0, &run, &mut |n| progress.at(n))?;
     // Each later pass over the results, as a bar of the client results.
     let pass =
-        |e: &mut limen::report::Evaluation<'_>,
+        |e: &mut limen::report::Evaluation,
          what: &str,
          each: &mut dyn FnMut(limen::report::ReportRow) -> Result<(), Error>| {
             progress.phase(e.count() as u64, what);

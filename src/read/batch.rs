@@ -197,8 +197,6 @@ pub enum Pass {
     /// pass reports the first error in file order); samples are skipped
     /// after their kind.
     Qc,
-    /// Every row again, once a `Check` pass has passed: no repeat search.
-    Again,
 }
 
 /// Where a pass reads the results from.

@@ -1,0 +1,509 @@
+//! Classified rows kept between the pass that checks a batch and the pass
+//! that hands its rows on: in memory while they are few, then in an
+//! unlinked temporary file, so every row is parsed and classified once and
+//! memory stays flat however long the batch.
+
+use crate::classify::{State, Verdict};
+use crate::evaluated::{EvalError, ReportRow};
+use crate::units::Unit;
+use chrono::{Datelike, NaiveDate};
+use rust_decimal::Decimal;
+use std::collections::HashMap;
+use std::io::{BufReader, Read, Seek, Write};
+use std::sync::Arc;
+
+/// Encoded bytes held before they go to the file.
+const IN_MEMORY: usize = 4 << 20;
+
+pub struct Spool {
+    /// Rows not yet in the file (all of them while there is no file).
+    held: Vec<u8>,
+    file: Option<std::fs::File>,
+    /// Hold every row in memory (the caller keeps them all anyway).
+    unbounded: bool,
+    rows: usize,
+    /// Shared names (analyte, matrix, method, spec, citation, limits row),
+    /// numbered in the order met; found again by address, since rows share
+    /// one allocation per name.
+    names: Vec<Arc<str>>,
+    by_address: HashMap<usize, u32, crate::fasthash::Build>,
+}
+
+impl Spool {
+    /// Spills to a temporary file beyond a few megabytes.
+    pub fn new() -> Spool {
+        Spool::with(false)
+    }
+
+    /// Never spills: for a caller that holds every row in the end.
+    pub fn in_memory() -> Spool {
+        Spool::with(true)
+    }
+
+    fn with(unbounded: bool) -> Spool {
+        Spool {
+            held: Vec::new(),
+            file: None,
+            unbounded,
+            rows: 0,
+            names: Vec::new(),
+            by_address: HashMap::default(),
+        }
+    }
+
+    pub fn len(&self) -> usize {
+        self.rows
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.rows == 0
+    }
+
+    pub fn push(&mut self, r: &ReportRow) -> Result<(), EvalError> {
+        let start = self.held.len();
+        self.held.extend_from_slice(&[0; 4]);
+        self.encode(r);
+        let len = (self.held.len() - start - 4) as u32;
+        self.held[start..start + 4].copy_from_slice(&len.to_le_bytes());
+        self.rows += 1;
+        if !self.unbounded && self.held.len() >= IN_MEMORY {
+            self.spill()?;
+        }
+        Ok(())
+    }
+
+    fn spill(&mut self) -> Result<(), EvalError> {
+        if self.file.is_none() {
+            self.file = Some(scratch().map_err(failed)?);
+        }
+        if let Some(f) = &mut self.file {
+            f.write_all(&self.held).map_err(failed)?;
+        }
+        self.held.clear();
+        Ok(())
+    }
+
+    /// Every row pushed, in order; may be run again.
+    pub fn replay<E: From<EvalError>>(
+        &mut self,
+        mut each: impl FnMut(ReportRow) -> Result<(), E>,
+    ) -> Result<(), E> {
+        let names = &self.names;
+        match &mut self.file {
+            None => replay_held(&self.held, names, &mut each)?,
+            Some(f) => {
+                f.flush().map_err(failed)?;
+                f.rewind().map_err(failed)?;
+                let mut r = BufReader::with_capacity(1 << 16, &mut *f);
+                let mut body = Vec::new();
+                let mut len = [0u8; 4];
+                loop {
+                    match r.read_exact(&mut len) {
+                        Ok(()) => {}
+                        Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => break,
+                        Err(e) => return Err(failed(e).into()),
+                    }
+                    body.resize(u32::from_le_bytes(len) as usize, 0);
+                    r.read_exact(&mut body).map_err(failed)?;
+                    each(
+                        Decoder {
+                            b: &body,
+                            at: 0,
+                            names,
+                        }
+                        .row()?,
+                    )?;
+                }
+                replay_held(&self.held, names, &mut each)?;
+                // Back to the end, should more rows be pushed.
+                f.seek(std::io::SeekFrom::End(0)).map_err(failed)?;
+            }
+        }
+        Ok(())
+    }
+
+    fn name(&mut self, s: &Arc<str>) -> u32 {
+        let address = Arc::as_ptr(s) as *const u8 as usize;
+        if let Some(&i) = self.by_address.get(&address) {
+            return i;
+        }
+        let i = self.names.len() as u32;
+        // Kept alive here, so the address cannot be reused by another name.
+        self.names.push(s.clone());
+        self.by_address.insert(address, i);
+        i
+    }
+
+    fn encode(&mut self, r: &ReportRow) {
+        let names = [
+            self.name(&r.analyte),
+            self.name(&r.matrix),
+            self.name(&r.method),
+            self.name(&r.spec_citation),
+            self.name(&r.limits_row),
+            match &r.spec {
+                Some(s) => self.name(s),
+                None => u32::MAX,
+            },
+        ];
+        let b = &mut self.held;
+        b.extend_from_slice(&r.line.to_le_bytes());
+        for s in [&r.lab_id, &r.client_id, &r.description, &r.reported] {
+            b.extend_from_slice(&(s.len() as u32).to_le_bytes());
+            b.extend_from_slice(s.as_bytes());
+        }
+        for n in names {
+            b.extend_from_slice(&n.to_le_bytes());
+        }
+        b.extend_from_slice(&r.analyzed_on.num_days_from_ce().to_le_bytes());
+        b.push(index_of(&Unit::ALL, r.unit));
+        b.push(index_of(&State::ALL, r.state));
+        b.push(r.verdict.map_or(u8::MAX, |v| index_of(&Verdict::ALL, v)));
+        b.push(r.weak_pass as u8);
+        for d in [
+            r.value_unrounded,
+            r.mdl,
+            r.loq,
+            r.mdl_unrounded,
+            r.loq_unrounded,
+            r.dilution,
+        ] {
+            b.extend_from_slice(&d.serialize());
+        }
+        for d in [
+            r.value,
+            r.spec_limit,
+            r.uncertainty_pct,
+            r.uncertainty,
+            r.ld,
+            r.beta_at_limit,
+        ] {
+            match d {
+                Some(d) => {
+                    b.push(1);
+                    b.extend_from_slice(&d.serialize());
+                }
+                None => b.push(0),
+            }
+        }
+        b.push(r.qualifiers.len() as u8);
+        for q in &r.qualifiers {
+            b.extend_from_slice(&(q.len() as u32).to_le_bytes());
+            b.extend_from_slice(q.as_bytes());
+        }
+    }
+}
+
+impl Default for Spool {
+    fn default() -> Self {
+        Spool::new()
+    }
+}
+
+/// The rows still in memory, in order.
+fn replay_held<E: From<EvalError>>(
+    held: &[u8],
+    names: &[Arc<str>],
+    each: &mut impl FnMut(ReportRow) -> Result<(), E>,
+) -> Result<(), E> {
+    let mut at = 0;
+    while at < held.len() {
+        let len = u32::from_le_bytes(take(held, at)?) as usize;
+        let body = held.get(at + 4..at + 4 + len).ok_or_else(corrupt)?;
+        each(
+            Decoder {
+                b: body,
+                at: 0,
+                names,
+            }
+            .row()?,
+        )?;
+        at += 4 + len;
+    }
+    Ok(())
+}
+
+fn index_of<T: PartialEq + Copy>(all: &[T], x: T) -> u8 {
+    all.iter().position(|y| *y == x).unwrap_or(0) as u8
+}
+
+fn failed(source: std::io::Error) -> EvalError {
+    EvalError::Scratch {
+        dir: std::env::temp_dir(),
+        source,
+    }
+}
+
+fn corrupt() -> EvalError {
+    failed(std::io::Error::new(
+        std::io::ErrorKind::InvalidData,
+        "a row read back is not as written",
+    ))
+}
+
+fn take<const N: usize>(b: &[u8], at: usize) -> Result<[u8; N], EvalError> {
+    b.get(at..at + N)
+        .and_then(|s| s.try_into().ok())
+        .ok_or_else(corrupt)
+}
+
+/// A new file in the temporary folder, removed from the folder at once on
+/// Unix (the open handle keeps it), so nothing is left behind by a crash.
+fn scratch() -> std::io::Result<std::fs::File> {
+    let dir = std::env::temp_dir();
+    let stamp = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map_or(0, |d| d.as_nanos());
+    for attempt in 0..100u32 {
+        let path = dir.join(format!(
+            ".limen-rows-{}-{stamp}-{attempt}",
+            std::process::id()
+        ));
+        match std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create_new(true)
+            .open(&path)
+        {
+            Ok(f) => {
+                let _ = std::fs::remove_file(&path);
+                return Ok(f);
+            }
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => continue,
+            Err(e) => return Err(e),
+        }
+    }
+    Err(std::io::Error::new(
+        std::io::ErrorKind::AlreadyExists,
+        "no free name for a temporary file",
+    ))
+}
+
+struct Decoder<'a> {
+    b: &'a [u8],
+    at: usize,
+    names: &'a [Arc<str>],
+}
+
+impl Decoder<'_> {
+    fn bytes<const N: usize>(&mut self) -> Result<[u8; N], EvalError> {
+        let x = take(self.b, self.at)?;
+        self.at += N;
+        Ok(x)
+    }
+
+    fn u8(&mut self) -> Result<u8, EvalError> {
+        Ok(self.bytes::<1>()?[0])
+    }
+
+    fn u32(&mut self) -> Result<u32, EvalError> {
+        Ok(u32::from_le_bytes(self.bytes()?))
+    }
+
+    fn string(&mut self) -> Result<String, EvalError> {
+        let len = self.u32()? as usize;
+        let s = self.b.get(self.at..self.at + len).ok_or_else(corrupt)?;
+        self.at += len;
+        String::from_utf8(s.to_vec()).map_err(|_| corrupt())
+    }
+
+    fn name(&mut self) -> Result<Arc<str>, EvalError> {
+        let i = self.u32()?;
+        self.names.get(i as usize).cloned().ok_or_else(corrupt)
+    }
+
+    fn decimal(&mut self) -> Result<Decimal, EvalError> {
+        Ok(Decimal::deserialize(self.bytes()?))
+    }
+
+    fn optional(&mut self) -> Result<Option<Decimal>, EvalError> {
+        Ok(match self.u8()? {
+            0 => None,
+            _ => Some(self.decimal()?),
+        })
+    }
+
+    fn pick<T: Copy>(&mut self, all: &[T]) -> Result<T, EvalError> {
+        all.get(self.u8()? as usize).copied().ok_or_else(corrupt)
+    }
+
+    fn row(mut self) -> Result<ReportRow, EvalError> {
+        let line = u64::from_le_bytes(self.bytes()?);
+        let lab_id = self.string()?;
+        let client_id = self.string()?;
+        let description = self.string()?;
+        let reported = self.string()?;
+        let analyte = self.name()?;
+        let matrix = self.name()?;
+        let method = self.name()?;
+        let spec_citation = self.name()?;
+        let limits_row = self.name()?;
+        let spec = match self.u32()? {
+            u32::MAX => None,
+            i => Some(self.names.get(i as usize).cloned().ok_or_else(corrupt)?),
+        };
+        let days = i32::from_le_bytes(self.bytes()?);
+        let analyzed_on = NaiveDate::from_num_days_from_ce_opt(days).ok_or_else(corrupt)?;
+        let unit = self.pick(&Unit::ALL)?;
+        let state = self.pick(&State::ALL)?;
+        let verdict = match self.u8()? {
+            u8::MAX => None,
+            i => Some(*Verdict::ALL.get(i as usize).ok_or_else(corrupt)?),
+        };
+        let weak_pass = self.u8()? != 0;
+        let value_unrounded = self.decimal()?;
+        let mdl = self.decimal()?;
+        let loq = self.decimal()?;
+        let mdl_unrounded = self.decimal()?;
+        let loq_unrounded = self.decimal()?;
+        let dilution = self.decimal()?;
+        let value = self.optional()?;
+        let spec_limit = self.optional()?;
+        let uncertainty_pct = self.optional()?;
+        let uncertainty = self.optional()?;
+        let ld = self.optional()?;
+        let beta_at_limit = self.optional()?;
+        let n = self.u8()?;
+        let mut qualifiers = Vec::with_capacity(n as usize);
+        for _ in 0..n {
+            qualifiers.push(self.string()?);
+        }
+        Ok(ReportRow {
+            line,
+            lab_id,
+            client_id,
+            description,
+            analyte,
+            matrix,
+            method,
+            analyzed_on,
+            reported,
+            value,
+            value_unrounded,
+            unit,
+            state,
+            mdl,
+            loq,
+            mdl_unrounded,
+            loq_unrounded,
+            dilution,
+            spec,
+            spec_limit,
+            spec_citation,
+            verdict,
+            uncertainty_pct,
+            uncertainty,
+            ld,
+            beta_at_limit,
+            weak_pass,
+            qualifiers,
+            limits_row,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::str::FromStr;
+
+    fn d(s: &str) -> Decimal {
+        Decimal::from_str(s).unwrap()
+    }
+
+    fn row(i: u64, names: &[Arc<str>]) -> ReportRow {
+        ReportRow {
+            line: i + 2,
+            lab_id: format!("L{i}"),
+            client_id: if i % 3 == 0 {
+                String::new()
+            } else {
+                format!("C-{i}")
+            },
+            description: format!("chip é {i}"),
+            analyte: names[(i % 2) as usize].clone(),
+            matrix: names[2].clone(),
+            method: names[3].clone(),
+            analyzed_on: NaiveDate::from_ymd_opt(2026, 11, 1 + (i % 28) as u32).unwrap(),
+            reported: if i % 4 == 0 {
+                "< 0.600".into()
+            } else {
+                format!("{i}.5")
+            },
+            value: (i % 4 != 0).then(|| d("12.5") + Decimal::from(i)),
+            value_unrounded: d("12.4999") + Decimal::from(i),
+            unit: Unit::ALL[(i % 10) as usize],
+            state: State::ALL[(i % 4) as usize],
+            mdl: d("0.600"),
+            loq: d("2.00"),
+            mdl_unrounded: d("0.59871"),
+            loq_unrounded: d("1.99571"),
+            dilution: Decimal::from(1 + i % 3),
+            spec: (i % 5 != 0).then(|| names[4].clone()),
+            spec_limit: (i % 5 != 0).then(|| d("90")),
+            spec_citation: names[5].clone(),
+            verdict: (i % 6 != 5).then(|| Verdict::ALL[(i % 5) as usize]),
+            uncertainty_pct: (i % 2 == 0).then(|| d("10")),
+            uncertainty: (i % 2 == 0).then(|| d("1.2")),
+            ld: (i % 7 == 0).then(|| d("-0.031")),
+            beta_at_limit: (i % 7 == 0).then(|| d("0.000001")),
+            weak_pass: i % 9 == 0,
+            qualifiers: (0..i % 3).map(|k| format!("q{k}")).collect(),
+            limits_row: names[(6 + i % 2) as usize].clone(),
+        }
+    }
+
+    fn names() -> Vec<Arc<str>> {
+        [
+            "Pb",
+            "Cd",
+            "paint",
+            "6010D",
+            "US-PAINT-PB",
+            "16 CFR 1303",
+            "MDL-1",
+            "limits.csv:7",
+        ]
+        .into_iter()
+        .map(Arc::from)
+        .collect()
+    }
+
+    #[test]
+    fn rows_come_back_as_pushed_from_memory_and_from_the_file() {
+        let names = names();
+        // Enough rows to pass the in-memory size several times.
+        let many = (IN_MEMORY / 150) as u64 * 3;
+        for (spool, n) in [(Spool::in_memory(), 500), (Spool::new(), many)] {
+            let mut spool = spool;
+            for i in 0..n {
+                spool.push(&row(i, &names)).unwrap();
+            }
+            assert_eq!(spool.file.is_some(), n == many);
+            for _ in 0..2 {
+                let mut i = 0;
+                spool
+                    .replay(|r| {
+                        assert_eq!(r, row(i, &names));
+                        i += 1;
+                        Ok::<(), EvalError>(())
+                    })
+                    .unwrap();
+                assert_eq!(i, n);
+            }
+        }
+    }
+
+    #[test]
+    fn names_come_back_shared() {
+        let names = names();
+        let mut spool = Spool::in_memory();
+        spool.push(&row(1, &names)).unwrap();
+        spool
+            .replay(|r| {
+                assert!(Arc::ptr_eq(&r.analyte, &names[1]));
+                Ok::<(), EvalError>(())
+            })
+            .unwrap();
+    }
+}
