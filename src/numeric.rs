@@ -11,12 +11,11 @@ pub fn parse_decimal(text: &str) -> Result<Decimal, String> {
     if t.is_empty() {
         return Err("empty; a number is required".into());
     }
-    let lower = t.to_ascii_lowercase();
     if t.starts_with('<')
         || t.starts_with('>')
-        || lower == "nd"
-        || lower == "n.d."
-        || lower == "bdl"
+        || ["nd", "n.d.", "bdl"]
+            .iter()
+            .any(|w| t.eq_ignore_ascii_case(w))
     {
         return Err(format!(
             "`{t}` is a reported value, not an instrument reading; give the raw reading (negative readings are valid)"
@@ -122,11 +121,60 @@ pub fn decimal_of(x: f64) -> Option<Decimal> {
 
 /// Plain text of an exact decimal without meaningless trailing zeros.
 pub fn plain(d: Decimal) -> String {
+    let mut s = String::new();
+    push_plain(&mut s, d);
+    s
+}
+
+/// `plain`, appended to `out` (no allocation of its own).
+pub fn push_plain(out: &mut String, d: Decimal) {
     let n = d.normalize();
     if n.is_zero() {
-        "0".into()
+        out.push('0');
     } else {
-        n.to_string()
+        push_decimal(out, n);
+    }
+}
+
+/// Appends `d` exactly as its `Display` writes it (sign, every digit of
+/// the scale), without the formatting machinery: a results CSV writes
+/// several decimals per row.
+pub fn push_decimal(out: &mut String, d: Decimal) {
+    let mut buf = [b'0'; 40];
+    let end = buf.len();
+    let mut n = 0;
+    let mut m = d.mantissa().unsigned_abs();
+    // Above 64 bits divide the wide way until the rest fits a u64.
+    while m > u64::MAX as u128 {
+        buf[end - 1 - n] = b'0' + (m % 10) as u8;
+        m /= 10;
+        n += 1;
+    }
+    let mut x = m as u64;
+    while x != 0 {
+        buf[end - 1 - n] = b'0' + (x % 10) as u8;
+        x /= 10;
+        n += 1;
+    }
+    let scale = d.scale() as usize;
+    // The buffer is zeros already: a short mantissa is padded to the scale.
+    let len = n.max(scale);
+    let digits = &buf[end - len..];
+    if d.is_sign_negative() {
+        out.push('-');
+    }
+    let whole = len - scale;
+    if whole == 0 {
+        out.push('0');
+    }
+    for &b in &digits[..whole] {
+        out.push(b as char);
+    }
+    if scale > 0 {
+        out.push('.');
+        for &b in &digits[whole..] {
+            out.push(b as char);
+        }
     }
 }
 
@@ -136,6 +184,49 @@ mod tests {
 
     fn d(s: &str) -> Decimal {
         parse_decimal(s).unwrap()
+    }
+
+    // The reference is rust_decimal's own Display, over the whole range.
+    proptest::proptest! {
+        #[test]
+        fn push_decimal_writes_what_display_writes(
+            lo in proptest::prelude::any::<u32>(),
+            mid in proptest::prelude::any::<u32>(),
+            hi in proptest::prelude::any::<u32>(),
+            negative in proptest::prelude::any::<bool>(),
+            scale in 0u32..=28,
+            wide in proptest::prelude::any::<bool>(),
+        ) {
+            let (mid, hi) = if wide { (mid, hi) } else { (0, 0) };
+            let d = Decimal::from_parts(lo, mid, hi, negative, scale);
+            let mut s = String::new();
+            push_decimal(&mut s, d);
+            proptest::prop_assert_eq!(&s, &d.to_string());
+            let mut p = String::new();
+            push_plain(&mut p, d);
+            let n = d.normalize();
+            let expected = if n.is_zero() { "0".to_string() } else { n.to_string() };
+            proptest::prop_assert_eq!(p, expected);
+        }
+    }
+
+    #[test]
+    fn push_decimal_edges_as_display() {
+        for d in [
+            Decimal::ZERO,
+            Decimal::from_parts(0, 0, 0, true, 0),
+            Decimal::from_parts(0, 0, 0, true, 3),
+            Decimal::from_parts(0, 0, 0, false, 28),
+            Decimal::MAX,
+            Decimal::MIN,
+            Decimal::from_parts(5, 0, 0, false, 28),
+            Decimal::from_parts(u32::MAX, u32::MAX, 0, true, 10),
+            Decimal::from_parts(0, 0, 1, false, 19),
+        ] {
+            let mut s = String::new();
+            push_decimal(&mut s, d);
+            assert_eq!(s, d.to_string());
+        }
     }
 
     // ASTM E29, rounding method: a 5 followed only by zeros rounds to the even digit.

@@ -139,7 +139,7 @@ pub fn build(
     )?;
     let mut rows = Vec::with_capacity(e.count());
     e.each_row(|_, r| {
-        rows.push(r);
+        rows.push(r.clone());
         Ok::<(), EvalError>(())
     })?;
     let mut report = e.finish();
@@ -328,14 +328,14 @@ impl Evaluation {
     /// then prints); `finish` reflects the last run.
     pub fn each_row<E: From<EvalError>>(
         &mut self,
-        mut each: impl FnMut(&Header, ReportRow) -> Result<(), E>,
+        mut each: impl FnMut(&Header, &ReportRow) -> Result<(), E>,
     ) -> Result<(), E> {
         self.plan.restart();
         let (header, plan) = (&self.header, &mut self.plan);
         let mut index = 0usize;
         self.rows
-            .replay(|mut out: ReportRow| -> Result<(), RowError<E>> {
-                plan.qualify(index, &mut out);
+            .replay(|out: &mut ReportRow| -> Result<(), RowError<E>> {
+                plan.qualify(index, out);
                 index += 1;
                 each(header, out).map_err(RowError::Each)
             })
@@ -394,22 +394,28 @@ fn classify_row(
         )),
         _ => None,
     };
+    let text = |prefix: &str, d: rust_decimal::Decimal| {
+        let mut s = String::with_capacity(prefix.len() + 12);
+        s.push_str(prefix);
+        crate::numeric::push_decimal(&mut s, d);
+        s
+    };
     let (reported, value) = match state {
         State::NotDetected => (
             match nd_style {
-                NotDetectedStyle::LessThan => format!("< {mdl}"),
+                NotDetectedStyle::LessThan => text("< ", mdl),
                 NotDetectedStyle::Nd => "ND".to_string(),
             },
             None,
         ),
         State::OverRange => (
             match r.upper {
-                Some(u) => format!("> {}", round_sig(u, sig)),
+                Some(u) => text("> ", round_sig(u, sig)),
                 None => "over range".to_string(),
             },
             None,
         ),
-        State::DetectedBelowLoq | State::Quantified => (rounded.to_string(), Some(rounded)),
+        State::DetectedBelowLoq | State::Quantified => (text("", rounded), Some(rounded)),
     };
     Ok(ReportRow {
         line: row.line,

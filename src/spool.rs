@@ -83,14 +83,28 @@ impl Spool {
         Ok(())
     }
 
-    /// Every row pushed, in order; may be run again.
+    /// Every row pushed, in order; may be run again. The row handed on is
+    /// one value refilled each time (its strings keep their room), so
+    /// reading back allocates next to nothing.
     pub fn replay<E: From<EvalError>>(
         &mut self,
-        mut each: impl FnMut(ReportRow) -> Result<(), E>,
+        mut each: impl FnMut(&mut ReportRow) -> Result<(), E>,
     ) -> Result<(), E> {
         let names = &self.names;
+        let mut slot: Option<ReportRow> = None;
+        let mut each = |b: &[u8]| -> Result<(), E> {
+            let d = Decoder { b, at: 0, names };
+            let r = match &mut slot {
+                Some(r) => {
+                    d.fill(r)?;
+                    r
+                }
+                None => slot.insert(d.row()?),
+            };
+            each(r)
+        };
         match &mut self.file {
-            None => replay_held(&self.held, names, &mut each)?,
+            None => replay_held(&self.held, &mut each)?,
             Some(f) => {
                 f.flush().map_err(failed)?;
                 f.rewind().map_err(failed)?;
@@ -105,16 +119,9 @@ impl Spool {
                     }
                     body.resize(u32::from_le_bytes(len) as usize, 0);
                     r.read_exact(&mut body).map_err(failed)?;
-                    each(
-                        Decoder {
-                            b: &body,
-                            at: 0,
-                            names,
-                        }
-                        .row()?,
-                    )?;
+                    each(&body)?;
                 }
-                replay_held(&self.held, names, &mut each)?;
+                replay_held(&self.held, &mut each)?;
                 // Back to the end, should more rows be pushed.
                 f.seek(std::io::SeekFrom::End(0)).map_err(failed)?;
             }
@@ -200,24 +207,16 @@ impl Default for Spool {
     }
 }
 
-/// The rows still in memory, in order.
+/// The rows still in memory, in order, as their encoded bodies.
 fn replay_held<E: From<EvalError>>(
     held: &[u8],
-    names: &[Arc<str>],
-    each: &mut impl FnMut(ReportRow) -> Result<(), E>,
+    each: &mut impl FnMut(&[u8]) -> Result<(), E>,
 ) -> Result<(), E> {
     let mut at = 0;
     while at < held.len() {
         let len = u32::from_le_bytes(take(held, at)?) as usize;
         let body = held.get(at + 4..at + 4 + len).ok_or_else(corrupt)?;
-        each(
-            Decoder {
-                b: body,
-                at: 0,
-                names,
-            }
-            .row()?,
-        )?;
+        each(body)?;
         at += 4 + len;
     }
     Ok(())
@@ -300,11 +299,19 @@ impl Decoder<'_> {
         Ok(u32::from_le_bytes(self.bytes()?))
     }
 
-    fn string(&mut self) -> Result<String, EvalError> {
+    fn string_into(&mut self, out: &mut String) -> Result<(), EvalError> {
         let len = self.u32()? as usize;
         let s = self.b.get(self.at..self.at + len).ok_or_else(corrupt)?;
         self.at += len;
-        String::from_utf8(s.to_vec()).map_err(|_| corrupt())
+        out.clear();
+        out.push_str(std::str::from_utf8(s).map_err(|_| corrupt())?);
+        Ok(())
+    }
+
+    fn string(&mut self) -> Result<String, EvalError> {
+        let mut s = String::new();
+        self.string_into(&mut s)?;
+        Ok(s)
     }
 
     fn name(&mut self) -> Result<Arc<str>, EvalError> {
@@ -327,78 +334,86 @@ impl Decoder<'_> {
         all.get(self.u8()? as usize).copied().ok_or_else(corrupt)
     }
 
-    fn row(mut self) -> Result<ReportRow, EvalError> {
-        let line = u64::from_le_bytes(self.bytes()?);
-        let lab_id = self.string()?;
-        let client_id = self.string()?;
-        let description = self.string()?;
-        let reported = self.string()?;
-        let analyte = self.name()?;
-        let matrix = self.name()?;
-        let method = self.name()?;
-        let spec_citation = self.name()?;
-        let limits_row = self.name()?;
-        let spec = match self.u32()? {
+    fn row(self) -> Result<ReportRow, EvalError> {
+        let mut r = ReportRow {
+            line: 0,
+            lab_id: String::new(),
+            client_id: String::new(),
+            description: String::new(),
+            analyte: Arc::from(""),
+            matrix: Arc::from(""),
+            method: Arc::from(""),
+            analyzed_on: NaiveDate::MIN,
+            reported: String::new(),
+            value: None,
+            value_unrounded: Decimal::ZERO,
+            unit: Unit::ALL[0],
+            state: State::ALL[0],
+            mdl: Decimal::ZERO,
+            loq: Decimal::ZERO,
+            mdl_unrounded: Decimal::ZERO,
+            loq_unrounded: Decimal::ZERO,
+            dilution: Decimal::ZERO,
+            spec: None,
+            spec_limit: None,
+            spec_citation: Arc::from(""),
+            verdict: None,
+            uncertainty_pct: None,
+            uncertainty: None,
+            ld: None,
+            beta_at_limit: None,
+            weak_pass: false,
+            qualifiers: Vec::new(),
+            limits_row: Arc::from(""),
+        };
+        self.fill(&mut r)?;
+        Ok(r)
+    }
+
+    /// Overwrites every field of `r` with the next row's.
+    fn fill(mut self, r: &mut ReportRow) -> Result<(), EvalError> {
+        r.line = u64::from_le_bytes(self.bytes()?);
+        self.string_into(&mut r.lab_id)?;
+        self.string_into(&mut r.client_id)?;
+        self.string_into(&mut r.description)?;
+        self.string_into(&mut r.reported)?;
+        r.analyte = self.name()?;
+        r.matrix = self.name()?;
+        r.method = self.name()?;
+        r.spec_citation = self.name()?;
+        r.limits_row = self.name()?;
+        r.spec = match self.u32()? {
             u32::MAX => None,
             i => Some(self.names.get(i as usize).cloned().ok_or_else(corrupt)?),
         };
         let days = i32::from_le_bytes(self.bytes()?);
-        let analyzed_on = NaiveDate::from_num_days_from_ce_opt(days).ok_or_else(corrupt)?;
-        let unit = self.pick(&Unit::ALL)?;
-        let state = self.pick(&State::ALL)?;
-        let verdict = match self.u8()? {
+        r.analyzed_on = NaiveDate::from_num_days_from_ce_opt(days).ok_or_else(corrupt)?;
+        r.unit = self.pick(&Unit::ALL)?;
+        r.state = self.pick(&State::ALL)?;
+        r.verdict = match self.u8()? {
             u8::MAX => None,
             i => Some(*Verdict::ALL.get(i as usize).ok_or_else(corrupt)?),
         };
-        let weak_pass = self.u8()? != 0;
-        let value_unrounded = self.decimal()?;
-        let mdl = self.decimal()?;
-        let loq = self.decimal()?;
-        let mdl_unrounded = self.decimal()?;
-        let loq_unrounded = self.decimal()?;
-        let dilution = self.decimal()?;
-        let value = self.optional()?;
-        let spec_limit = self.optional()?;
-        let uncertainty_pct = self.optional()?;
-        let uncertainty = self.optional()?;
-        let ld = self.optional()?;
-        let beta_at_limit = self.optional()?;
+        r.weak_pass = self.u8()? != 0;
+        r.value_unrounded = self.decimal()?;
+        r.mdl = self.decimal()?;
+        r.loq = self.decimal()?;
+        r.mdl_unrounded = self.decimal()?;
+        r.loq_unrounded = self.decimal()?;
+        r.dilution = self.decimal()?;
+        r.value = self.optional()?;
+        r.spec_limit = self.optional()?;
+        r.uncertainty_pct = self.optional()?;
+        r.uncertainty = self.optional()?;
+        r.ld = self.optional()?;
+        r.beta_at_limit = self.optional()?;
         let n = self.u8()?;
-        let mut qualifiers = Vec::with_capacity(n as usize);
+        r.qualifiers.clear();
         for _ in 0..n {
-            qualifiers.push(self.string()?);
+            let q = self.string()?;
+            r.qualifiers.push(q);
         }
-        Ok(ReportRow {
-            line,
-            lab_id,
-            client_id,
-            description,
-            analyte,
-            matrix,
-            method,
-            analyzed_on,
-            reported,
-            value,
-            value_unrounded,
-            unit,
-            state,
-            mdl,
-            loq,
-            mdl_unrounded,
-            loq_unrounded,
-            dilution,
-            spec,
-            spec_limit,
-            spec_citation,
-            verdict,
-            uncertainty_pct,
-            uncertainty,
-            ld,
-            beta_at_limit,
-            weak_pass,
-            qualifiers,
-            limits_row,
-        })
+        Ok(())
     }
 }
 
@@ -484,7 +499,7 @@ mod tests {
                 let mut i = 0;
                 spool
                     .replay(|r| {
-                        assert_eq!(r, row(i, &names));
+                        assert_eq!(*r, row(i, &names));
                         i += 1;
                         Ok::<(), EvalError>(())
                     })

@@ -35,7 +35,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
     let pass =
         |e: &mut limen::report::Evaluation,
          what: &str,
-         each: &mut dyn FnMut(limen::report::ReportRow) -> Result<(), Error>| {
+         each: &mut dyn FnMut(&limen::report::ReportRow) -> Result<(), Error>| {
             progress.phase(e.count() as u64, what);
             let mut n = 0u64;
             e.each_row(|_, r| {
@@ -51,14 +51,14 @@ pub fn run(a: Args) -> Result<i32, Error> {
             // Two passes: the column widths, then the lines.
             let mut table = Table::new(colour_stdout());
             pass(&mut e, "results sized", &mut |r| {
-                table.widen(&r);
+                table.widen(r);
                 Ok(())
             })?;
             let mut w = std::io::BufWriter::with_capacity(1 << 16, &mut out);
             w.write_all(table.head(e.header()).as_bytes())
                 .map_err(Error::stdout)?;
             pass(&mut e, "results written", &mut |r| {
-                w.write_all(table.row(&r).as_bytes()).map_err(Error::stdout)
+                w.write_all(table.row(r).as_bytes()).map_err(Error::stdout)
             })?;
             progress.finish();
             let report = e.finish();
@@ -78,7 +78,7 @@ pub fn run(a: Args) -> Result<i32, Error> {
             )
             .map_err(Error::stdout)?;
             pass(&mut e, "results written", &mut |r| {
-                rows.row(&r).map_err(Error::stdout)
+                rows.row(r).map_err(Error::stdout)
             })?;
             rows.finish().map_err(Error::stdout)?;
             progress.finish();

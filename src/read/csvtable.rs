@@ -29,7 +29,9 @@ pub const fn opt(name: &'static str) -> Col {
 pub struct Row<'a> {
     pub file: &'a str,
     pub line: u64,
-    record: &'a csv::StringRecord,
+    record: &'a csv::ByteRecord,
+    /// The record's cells run together, checked as UTF-8 once.
+    text: &'a str,
     map: &'a [Option<usize>],
     cols: &'a [Col],
 }
@@ -37,7 +39,13 @@ pub struct Row<'a> {
 impl<'a> Row<'a> {
     pub fn get(&self, col: usize) -> &'a str {
         match self.map[col] {
-            Some(i) => self.record.get(i).unwrap_or("").trim(),
+            // Every cell edge is a character boundary (checked on reading).
+            Some(i) => self
+                .record
+                .range(i)
+                .and_then(|r| self.text.get(r))
+                .unwrap_or("")
+                .trim(),
             None => "",
         }
     }
@@ -339,9 +347,11 @@ pub fn read_rows_from<E: From<ReadError>>(
         }
         .into());
     }
-    let mut record = csv::StringRecord::new();
+    // Bytes, then one UTF-8 check of the whole record: a check per cell
+    // costs more than the parse on a long file.
+    let mut record = csv::ByteRecord::new();
     loop {
-        match reader.read_record(&mut record) {
+        match reader.read_byte_record(&mut record) {
             Ok(true) => {}
             Ok(false) => break,
             Err(e) => {
@@ -351,13 +361,39 @@ pub fn read_rows_from<E: From<ReadError>>(
         }
         let start = record.position().map(|p| p.byte()).unwrap_or(0);
         let line = lines.advance(&mut reader.get_mut().ends, start);
-        if record.iter().all(|c| c.trim().is_empty()) {
+        let text = match std::str::from_utf8(record.as_slice()) {
+            // A character split across two cells is as invalid as a broken one.
+            Ok(t)
+                if (0..record.len()).all(|i| {
+                    record
+                        .range(i)
+                        .is_some_and(|r| t.is_char_boundary(r.start) && t.is_char_boundary(r.end))
+                }) =>
+            {
+                t
+            }
+            _ => {
+                return Err(ReadError::Csv {
+                    file: file.to_string(),
+                    line,
+                    message: "not valid UTF-8 text".into(),
+                }
+                .into());
+            }
+        };
+        if (0..record.len()).all(|i| {
+            record
+                .range(i)
+                .and_then(|r| text.get(r))
+                .is_none_or(|c| c.trim().is_empty())
+        }) {
             continue;
         }
         let row = Row {
             file,
             line,
             record: &record,
+            text,
             map: &map,
             cols,
         };

@@ -2,7 +2,7 @@
 //! rounded values side by side.
 
 use super::Render;
-use crate::numeric::plain;
+use crate::numeric::{push_decimal, push_plain};
 use crate::report::{Report, ReportRow};
 
 pub const HEADER: [&str; 25] = [
@@ -56,51 +56,82 @@ fn write_row<W: std::io::Write>(
     report: &Common<'_>,
     r: &ReportRow,
 ) -> ::csv::Result<()> {
+    use rust_decimal::Decimal;
     use std::fmt::Write as _;
     let text = |w: &mut ::csv::Writer<W>, s: &str| w.write_field(neutralise(s).as_bytes());
-    let mut number = |w: &mut ::csv::Writer<W>, v: &dyn std::fmt::Display| {
+    // Decimals as Display writes them, empty when absent.
+    let decimal = |w: &mut ::csv::Writer<W>, num: &mut String, v: Option<Decimal>| {
         num.clear();
-        let _ = write!(num, "{v}");
+        if let Some(v) = v {
+            push_decimal(num, v);
+        }
+        w.write_field(num.as_bytes())
+    };
+    let exact = |w: &mut ::csv::Writer<W>, num: &mut String, v: Option<Decimal>| {
+        num.clear();
+        if let Some(v) = v {
+            push_plain(num, v);
+        }
         w.write_field(num.as_bytes())
     };
     text(w, report.report)?;
-    number(w, &report.revision)?;
+    num.clear();
+    let _ = write!(num, "{}", report.revision);
+    w.write_field(num.as_bytes())?;
     text(w, &r.lab_id)?;
     text(w, &r.client_id)?;
     text(w, &r.description)?;
     text(w, &r.analyte)?;
     text(w, &r.matrix)?;
     text(w, &r.method)?;
-    number(w, &r.analyzed_on)?;
+    num.clear();
+    push_date(num, r.analyzed_on);
+    w.write_field(num.as_bytes())?;
     text(w, &r.reported)?;
-    match r.value {
-        Some(v) => number(w, &v)?,
-        None => number(w, &"")?,
-    }
+    decimal(w, num, r.value)?;
     // Over range, the reading was above the highest standard: no number
     // stands for the result, so both value columns are empty.
-    if r.state == crate::classify::State::OverRange {
-        number(w, &"")?;
-    } else {
-        number(w, &plain(r.value_unrounded))?;
-    }
+    let over = r.state == crate::classify::State::OverRange;
+    exact(w, num, (!over).then_some(r.value_unrounded))?;
     text(w, r.unit.symbol())?;
     text(w, r.state.name())?;
-    number(w, &r.mdl)?;
-    number(w, &r.loq)?;
-    number(w, &plain(r.dilution))?;
+    decimal(w, num, Some(r.mdl))?;
+    decimal(w, num, Some(r.loq))?;
+    exact(w, num, Some(r.dilution))?;
     text(w, r.spec.as_deref().unwrap_or(""))?;
-    number(w, &r.spec_limit.map(plain).unwrap_or_default())?;
+    exact(w, num, r.spec_limit)?;
     text(w, r.verdict.map(|v| v.name()).unwrap_or(""))?;
-    text(w, &qualifiers(report, r))?;
+    if r.qualifiers.is_empty() {
+        w.write_field(b"")?;
+    } else {
+        text(w, &qualifiers(report, r))?;
+    }
     text(w, &r.limits_row)?;
     for v in [r.uncertainty, r.ld, r.beta_at_limit] {
-        match v {
-            Some(v) => number(w, &v)?,
-            None => number(w, &"")?,
-        }
+        decimal(w, num, v)?;
     }
     w.write_record(None::<&[u8]>)
+}
+
+/// A date as its Display writes it (YYYY-MM-DD), digits placed by hand for
+/// the four-digit years a results file can hold.
+fn push_date(out: &mut String, d: chrono::NaiveDate) {
+    use chrono::Datelike;
+    use std::fmt::Write as _;
+    let (y, m, day) = (d.year(), d.month(), d.day());
+    if !(0..=9999).contains(&y) {
+        let _ = write!(out, "{d}");
+        return;
+    }
+    let y = y as u32;
+    for x in [y / 1000, y / 100 % 10, y / 10 % 10, y % 10] {
+        out.push((b'0' + x as u8) as char);
+    }
+    for part in [m, day] {
+        out.push('-');
+        out.push((b'0' + (part / 10) as u8) as char);
+        out.push((b'0' + (part % 10) as u8) as char);
+    }
 }
 
 /// Qualifiers joined by ';'; an accepted QC exception carries its reason.
@@ -197,6 +228,18 @@ impl<'a, W: std::io::Write> Rows<'a, W> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The reference is chrono's own Display of the date.
+    proptest::proptest! {
+        #[test]
+        fn dates_are_written_as_chrono_writes_them(days in -800_000i32..4_000_000) {
+            if let Some(d) = chrono::NaiveDate::from_num_days_from_ce_opt(days) {
+                let mut s = String::new();
+                push_date(&mut s, d);
+                proptest::prop_assert_eq!(s, d.to_string());
+            }
+        }
+    }
 
     #[test]
     fn formula_text_is_neutralised() {
