@@ -66,6 +66,47 @@ pub fn round_sig(d: Decimal, sig: u32) -> Decimal {
 }
 
 fn round_at(d: Decimal, decimals: i64) -> Decimal {
+    if decimals >= 0 {
+        if let Some(out) = round_small(d, decimals.min(28) as u32) {
+            return out;
+        }
+    }
+    round_at_wide(d, decimals)
+}
+
+const POW10: [u128; 30] = {
+    let mut p = [1u128; 30];
+    let mut i = 1;
+    while i < 30 {
+        p[i] = p[i - 1] * 10;
+        i += 1;
+    }
+    p
+};
+
+/// Half-even rounding to `dp` places in plain integer arithmetic on the
+/// mantissa; None when the result would not fit.
+fn round_small(d: Decimal, dp: u32) -> Option<Decimal> {
+    let m = d.mantissa().unsigned_abs();
+    let s = d.scale();
+    let q = if dp >= s {
+        m.checked_mul(*POW10.get((dp - s) as usize)?)?
+    } else {
+        let p = *POW10.get((s - dp) as usize)?;
+        let (q, rem) = (m / p, m % p);
+        let half = p / 2;
+        if rem > half || (rem == half && q % 2 == 1) {
+            q + 1
+        } else {
+            q
+        }
+    };
+    let q = i128::try_from(q).ok()?;
+    let signed = if d.is_sign_negative() { -q } else { q };
+    Decimal::try_from_i128_with_scale(signed, dp).ok()
+}
+
+fn round_at_wide(d: Decimal, decimals: i64) -> Decimal {
     let mut out = if decimals >= 0 {
         let dp = decimals.min(28) as u32;
         let mut r = d.round_dp_with_strategy(dp, RoundingStrategy::MidpointNearestEven);
@@ -207,6 +248,40 @@ mod tests {
             let n = d.normalize();
             let expected = if n.is_zero() { "0".to_string() } else { n.to_string() };
             proptest::prop_assert_eq!(p, expected);
+        }
+    }
+
+    // The reference is rust_decimal's own half-even rounding.
+    proptest::proptest! {
+        #[test]
+        fn small_rounding_agrees_with_rust_decimal(
+            lo in proptest::prelude::any::<u32>(),
+            mid in proptest::prelude::any::<u32>(),
+            wide in proptest::prelude::any::<bool>(),
+            negative in proptest::prelude::any::<bool>(),
+            scale in 0u32..=28,
+            dp in 0i64..=30,
+        ) {
+            let hi = if wide { mid.rotate_left(7) } else { 0 };
+            let d = Decimal::from_parts(lo, if wide { mid } else { mid % 1000 }, hi, negative, scale);
+            proptest::prop_assert_eq!(round_at(d, dp), round_at_wide(d, dp));
+            let (a, b) = (round_at(d, dp), round_at_wide(d, dp));
+            proptest::prop_assert_eq!(a.scale(), b.scale());
+            proptest::prop_assert_eq!(a.is_sign_negative(), b.is_sign_negative());
+        }
+    }
+
+    #[test]
+    fn small_rounding_at_ties_goes_to_even() {
+        // ASTM E29 half-even, as in the examples above, by the u64 path.
+        for (x, dp, want) in [
+            ("0.125", 2, "0.12"),
+            ("0.135", 2, "0.14"),
+            ("-2.5", 0, "-2"),
+            ("-0.04", 1, "0.0"),
+        ] {
+            let got = round_small(d(x), dp).unwrap();
+            assert_eq!(got.to_string(), want, "{x}");
         }
     }
 

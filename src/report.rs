@@ -249,6 +249,7 @@ fn evaluate_into<'a>(
     let mut methods: Vec<Arc<str>> = Vec::new();
     let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
     let mut read = 0u64;
+    let mut lookups = resolve::Lookups::default();
     each_result_in(&batch.results_file, batch.source(), Pass::Check, |row| {
         read += 1;
         if read % TICK_ROWS == 0 {
@@ -257,7 +258,7 @@ fn evaluate_into<'a>(
         if row.kind != Kind::Sample {
             return Ok(());
         }
-        match resolve::resolve(&row, ws)? {
+        match resolve::resolve_with(&row, ws, &mut lookups)? {
             Resolution::Blocked(p) => problems.push(p),
             Resolution::Resolved(r) => {
                 limits_used

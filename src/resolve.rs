@@ -5,7 +5,9 @@
 use crate::problem::{Problem, ProblemKind};
 use crate::read::{InForce, LimitRow, Loc, ResultRow, SpecLookup, SpecRow, Workspace};
 use crate::units::{Dimension, Unit, convert};
+use chrono::{Datelike, NaiveDate};
 use rust_decimal::Decimal;
+use std::sync::Arc;
 
 #[derive(Debug, thiserror::Error)]
 pub enum ResolveError {
@@ -149,11 +151,76 @@ fn unit_mismatch(row: &ResultRow, limits: &LimitRow, what: &str) -> ResolveError
     }
 }
 
+/// A direct-mapped memory of lookups by three shared names and a date: a
+/// batch repeats a few such combinations on every row. The names are kept
+/// (cloned), so an address stands for one name while the cache lives.
+struct Memo<T> {
+    slots: Vec<Option<Remembered<T>>>,
+}
+
+type Remembered<T> = ([Arc<str>; 3], NaiveDate, T);
+
+const MEMO_SLOTS: usize = 64;
+
+impl<T: Clone> Memo<T> {
+    fn new() -> Memo<T> {
+        Memo {
+            slots: vec![None; MEMO_SLOTS],
+        }
+    }
+
+    fn get_or(&mut self, names: [&Arc<str>; 3], date: NaiveDate, look: impl FnOnce() -> T) -> T {
+        let mut h = date.num_days_from_ce() as u64;
+        for n in names {
+            h = (h ^ Arc::as_ptr(n) as *const u8 as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15);
+        }
+        let slot = &mut self.slots[(h >> 58) as usize % MEMO_SLOTS];
+        if let Some((keys, d, value)) = slot {
+            if *d == date && keys.iter().zip(names).all(|(k, n)| Arc::ptr_eq(k, n)) {
+                return value.clone();
+            }
+        }
+        let value = look();
+        *slot = Some((names.map(Arc::clone), date, value.clone()));
+        value
+    }
+}
+
+/// What stays the same from row to row of a batch: the register and spec
+/// rows in force for each combination met.
+pub struct Lookups<'w> {
+    limits: Memo<InForce<'w>>,
+    specs: Memo<SpecLookup<'w>>,
+}
+
+impl Default for Lookups<'_> {
+    fn default() -> Self {
+        Lookups {
+            limits: Memo::new(),
+            specs: Memo::new(),
+        }
+    }
+}
+
 pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>, ResolveError> {
-    let limits = match ws
-        .register
-        .in_force(&row.analyte, &row.matrix, &row.method, row.analyzed_on)
-    {
+    resolve_with(row, ws, &mut Lookups::default())
+}
+
+/// As `resolve`, remembering lookups across the rows of one batch.
+pub fn resolve_with<'w>(
+    row: &ResultRow,
+    ws: &'w Workspace,
+    lookups: &mut Lookups<'w>,
+) -> Result<Resolution<'w>, ResolveError> {
+    let in_force = lookups.limits.get_or(
+        [&row.analyte, &row.matrix, &row.method],
+        row.analyzed_on,
+        || {
+            ws.register
+                .in_force(&row.analyte, &row.matrix, &row.method, row.analyzed_on)
+        },
+    );
+    let limits = match in_force {
         InForce::Row(r) => r,
         InForce::NoRow => {
             return Ok(Resolution::Blocked(Problem {
@@ -205,7 +272,7 @@ pub fn resolve<'w>(row: &ResultRow, ws: &'w Workspace) -> Result<Resolution<'w>,
     let (upper, over_range) = upper_range(row, limits)?;
     let spec = match &row.spec {
         None => None,
-        Some(name) => match spec_in_force(row, ws, name, unit)? {
+        Some(name) => match spec_in_force(row, ws, name, unit, &mut lookups.specs)? {
             Ok(spec) => Some(spec),
             Err(problem) => return Ok(Resolution::Blocked(problem)),
         },
@@ -257,12 +324,14 @@ fn upper_range(
 fn spec_in_force<'w>(
     row: &ResultRow,
     ws: &'w Workspace,
-    name: &str,
+    name: &Arc<str>,
     unit: Unit,
+    memo: &mut Memo<SpecLookup<'w>>,
 ) -> Result<Result<ResolvedSpec<'w>, Problem>, ResolveError> {
-    let lookup = ws
-        .specs
-        .in_force(name, &row.analyte, &row.matrix, row.analyzed_on);
+    let lookup = memo.get_or([name, &row.analyte, &row.matrix], row.analyzed_on, || {
+        ws.specs
+            .in_force(name, &row.analyte, &row.matrix, row.analyzed_on)
+    });
     let message = match lookup {
         SpecLookup::Row(spec_row) => {
             let limit = convert(spec_row.limit, spec_row.unit, unit).ok_or_else(|| {

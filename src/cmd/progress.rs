@@ -31,7 +31,11 @@ impl Progress {
     }
 
     fn new(len: Option<u64>, at_once: bool) -> Progress {
-        let bar = std::io::stderr().is_terminal().then(|| {
+        // LIMEN_PROGRESS=off: never a bar; =now: no second's wait first.
+        let setting = std::env::var("LIMEN_PROGRESS").unwrap_or_default();
+        let at_once = at_once || setting == "now";
+        let wanted = setting != "off" && std::io::stderr().is_terminal();
+        let bar = wanted.then(|| {
             let bar = indicatif::ProgressBar::with_draw_target(
                 len,
                 indicatif::ProgressDrawTarget::hidden(),

@@ -44,8 +44,7 @@ impl<'a> Row<'a> {
                 .record
                 .range(i)
                 .and_then(|r| self.text.get(r))
-                .unwrap_or("")
-                .trim(),
+                .map_or("", trim_cell),
             None => "",
         }
     }
@@ -124,6 +123,17 @@ impl<'a> Row<'a> {
                 format!("units limen knows: {}", crate::units::Unit::accepted()),
             )
         })
+    }
+}
+
+/// `str::trim`, the ASCII way first: only a cell that then starts or ends
+/// with a byte outside printable ASCII can have more whitespace to lose.
+fn trim_cell(cell: &str) -> &str {
+    let t = cell.trim_ascii();
+    let plain = |b: u8| b.is_ascii() && b != 0x0b;
+    match (t.as_bytes().first(), t.as_bytes().last()) {
+        (Some(&a), Some(&z)) if !(plain(a) && plain(z)) => t.trim(),
+        _ => t,
     }
 }
 
@@ -412,6 +422,16 @@ pub fn read_file(path: &std::path::Path) -> Result<Vec<u8>, ReadError> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The reference is the standard library's Unicode `str::trim`.
+    proptest::proptest! {
+        #[test]
+        fn cells_trim_as_str_trim_does(
+            cell in "[ \t\r\n\u{0b}\u{0c}\u{85}\u{a0}\u{2003}\u{3000}a-zé,.]{0,12}"
+        ) {
+            proptest::prop_assert_eq!(trim_cell(&cell), cell.trim());
+        }
+    }
 
     const COLS: &[Col] = &[req("a"), opt("b")];
 

@@ -50,67 +50,105 @@ struct Common<'a> {
     qc_exception: Option<&'a str>,
 }
 
-fn write_row<W: std::io::Write>(
-    w: &mut ::csv::Writer<W>,
-    num: &mut String,
-    report: &Common<'_>,
-    r: &ReportRow,
-) -> ::csv::Result<()> {
+/// One CSV line, built in place: cells joined by commas, quoted (quotes
+/// doubled) when they hold a comma, a quote, CR or LF, as RFC 4180 and the
+/// csv crate's writer do, and ended by LF.
+#[derive(Default)]
+struct Line {
+    buf: Vec<u8>,
+    cells: usize,
+}
+
+impl Line {
+    fn start(&mut self) {
+        self.buf.clear();
+        self.cells = 0;
+    }
+
+    fn cell(&mut self, s: &[u8]) {
+        if self.cells > 0 {
+            self.buf.push(b',');
+        }
+        self.cells += 1;
+        if s.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n')) {
+            self.buf.push(b'"');
+            for &b in s {
+                if b == b'"' {
+                    self.buf.push(b'"');
+                }
+                self.buf.push(b);
+            }
+            self.buf.push(b'"');
+        } else {
+            self.buf.extend_from_slice(s);
+        }
+    }
+
+    fn text(&mut self, s: &str) {
+        self.cell(neutralise(s).as_bytes());
+    }
+
+    fn end(&mut self) {
+        self.buf.push(b'\n');
+    }
+}
+
+fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportRow) {
     use rust_decimal::Decimal;
     use std::fmt::Write as _;
-    let text = |w: &mut ::csv::Writer<W>, s: &str| w.write_field(neutralise(s).as_bytes());
     // Decimals as Display writes them, empty when absent.
-    let decimal = |w: &mut ::csv::Writer<W>, num: &mut String, v: Option<Decimal>| {
+    let decimal = |line: &mut Line, num: &mut String, v: Option<Decimal>| {
         num.clear();
         if let Some(v) = v {
             push_decimal(num, v);
         }
-        w.write_field(num.as_bytes())
+        line.cell(num.as_bytes());
     };
-    let exact = |w: &mut ::csv::Writer<W>, num: &mut String, v: Option<Decimal>| {
+    let exact = |line: &mut Line, num: &mut String, v: Option<Decimal>| {
         num.clear();
         if let Some(v) = v {
             push_plain(num, v);
         }
-        w.write_field(num.as_bytes())
+        line.cell(num.as_bytes());
     };
-    text(w, report.report)?;
+    line.start();
+    line.text(report.report);
     num.clear();
     let _ = write!(num, "{}", report.revision);
-    w.write_field(num.as_bytes())?;
-    text(w, &r.lab_id)?;
-    text(w, &r.client_id)?;
-    text(w, &r.description)?;
-    text(w, &r.analyte)?;
-    text(w, &r.matrix)?;
-    text(w, &r.method)?;
+    line.cell(num.as_bytes());
+    line.text(&r.lab_id);
+    line.text(&r.client_id);
+    line.text(&r.description);
+    line.text(&r.analyte);
+    line.text(&r.matrix);
+    line.text(&r.method);
     num.clear();
     push_date(num, r.analyzed_on);
-    w.write_field(num.as_bytes())?;
-    text(w, &r.reported)?;
-    decimal(w, num, r.value)?;
+    line.cell(num.as_bytes());
+    line.text(&r.reported);
+    decimal(line, num, r.value);
     // Over range, the reading was above the highest standard: no number
     // stands for the result, so both value columns are empty.
     let over = r.state == crate::classify::State::OverRange;
-    exact(w, num, (!over).then_some(r.value_unrounded))?;
-    text(w, r.unit.symbol())?;
-    text(w, r.state.name())?;
-    decimal(w, num, Some(r.mdl))?;
-    decimal(w, num, Some(r.loq))?;
-    exact(w, num, Some(r.dilution))?;
-    text(w, r.spec.as_deref().unwrap_or(""))?;
-    exact(w, num, r.spec_limit)?;
-    text(w, r.verdict.map(|v| v.name()).unwrap_or(""))?;
+    exact(line, num, (!over).then_some(r.value_unrounded));
+    line.text(r.unit.symbol());
+    line.text(r.state.name());
+    decimal(line, num, Some(r.mdl));
+    decimal(line, num, Some(r.loq));
+    exact(line, num, Some(r.dilution));
+    line.text(r.spec.as_deref().unwrap_or(""));
+    exact(line, num, r.spec_limit);
+    line.text(r.verdict.map(|v| v.name()).unwrap_or(""));
     if r.qualifiers.is_empty() {
-        w.write_field(b"")?;
+        line.cell(b"");
     } else {
-        text(w, &qualifiers(report, r))?;
+        line.text(&qualifiers(report, r));
     }
-    text(w, &r.limits_row)?;
+    line.text(&r.limits_row);
     for v in [r.uncertainty, r.ld, r.beta_at_limit] {
-        decimal(w, num, v)?;
+        decimal(line, num, v);
     }
-    w.write_record(None::<&[u8]>)
+    line.end();
 }
 
 /// A date as its Display writes it (YYYY-MM-DD), digits placed by hand for
@@ -181,17 +219,10 @@ impl Csv {
 
 /// A report's CSV written row by row, as an evaluation hands the rows on.
 pub struct Rows<'a, W: std::io::Write> {
-    w: ::csv::Writer<W>,
+    out: W,
+    line: Line,
     num: String,
     common: Common<'a>,
-}
-
-/// Keeps an I/O error's kind, so a closed pipe stays a closed pipe.
-fn io(e: ::csv::Error) -> std::io::Error {
-    match e.into_kind() {
-        ::csv::ErrorKind::Io(e) => e,
-        other => std::io::Error::other(format!("{other:?}")),
-    }
 }
 
 impl<'a, W: std::io::Write> Rows<'a, W> {
@@ -199,14 +230,17 @@ impl<'a, W: std::io::Write> Rows<'a, W> {
     pub fn new(
         header: &'a crate::report::Header,
         qc_exception: Option<&'a str>,
-        out: W,
+        mut out: W,
     ) -> std::io::Result<Self> {
-        let mut w = ::csv::WriterBuilder::new()
-            .terminator(::csv::Terminator::Any(b'\n'))
-            .from_writer(out);
-        w.write_record(HEADER).map_err(io)?;
+        let mut line = Line::default();
+        for h in HEADER {
+            line.cell(h.as_bytes());
+        }
+        line.end();
+        out.write_all(&line.buf)?;
         Ok(Rows {
-            w,
+            out,
+            line,
             num: String::new(),
             common: Common {
                 report: &header.report,
@@ -217,17 +251,38 @@ impl<'a, W: std::io::Write> Rows<'a, W> {
     }
 
     pub fn row(&mut self, r: &ReportRow) -> std::io::Result<()> {
-        write_row(&mut self.w, &mut self.num, &self.common, r).map_err(io)
+        write_row(&mut self.line, &mut self.num, &self.common, r);
+        self.out.write_all(&self.line.buf)
     }
 
     pub fn finish(mut self) -> std::io::Result<()> {
-        self.w.flush()
+        self.out.flush()
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The reference is the csv crate's writer (RFC 4180 quoting).
+    proptest::proptest! {
+        #[test]
+        fn lines_are_quoted_as_the_csv_crate_quotes_them(
+            cells in proptest::collection::vec("[a-z ,\"\r\n'é;=-]{0,6}", 25)
+        ) {
+            let mut line = Line::default();
+            line.start();
+            for c in &cells {
+                line.cell(c.as_bytes());
+            }
+            line.end();
+            let mut w = ::csv::WriterBuilder::new()
+                .terminator(::csv::Terminator::Any(b'\n'))
+                .from_writer(Vec::new());
+            w.write_record(&cells).unwrap();
+            proptest::prop_assert_eq!(line.buf, w.into_inner().unwrap());
+        }
+    }
 
     // The reference is chrono's own Display of the date.
     proptest::proptest! {
