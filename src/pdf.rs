@@ -421,7 +421,9 @@ const COMPRESSION: u32 = 1;
 /// Deflates every stream that has no filter yet, keeping the raw bytes
 /// where deflate would not make them smaller (as printpdf does).
 fn compress_streams(doc: &mut lopdf::Document, level: u32) {
-    use std::io::Write;
+    // One compressor, reset between streams: a new one allocates and
+    // clears a few hundred kilobytes of tables, several times per document.
+    let mut z = flate2::Compress::new(flate2::Compression::new(level), true);
     for obj in doc.objects.values_mut() {
         let lopdf::Object::Stream(stream) = obj else {
             continue;
@@ -429,13 +431,27 @@ fn compress_streams(doc: &mut lopdf::Document, level: u32) {
         if stream.dict.get(b"Filter").is_ok() {
             continue;
         }
-        let mut enc = flate2::write::ZlibEncoder::new(Vec::new(), flate2::Compression::new(level));
-        let packed = enc.write_all(&stream.content).and_then(|()| enc.finish());
-        if let Ok(packed) = packed {
+        z.reset();
+        if let Some(packed) = deflate(&mut z, &stream.content) {
             if packed.len() + 19 < stream.content.len() {
                 stream.dict.set("Filter", "FlateDecode");
                 stream.set_content(packed);
             }
+        }
+    }
+}
+
+/// The zlib stream of `input`, in one call; None should the compressor fail.
+fn deflate(z: &mut flate2::Compress, input: &[u8]) -> Option<Vec<u8>> {
+    let mut out = Vec::with_capacity(input.len() / 2 + 64);
+    loop {
+        let read = z.total_in() as usize;
+        let status = z
+            .compress_vec(&input[read..], &mut out, flate2::FlushCompress::Finish)
+            .ok()?;
+        match status {
+            flate2::Status::StreamEnd => return Some(out),
+            _ => out.reserve(out.capacity().max(1024)),
         }
     }
 }
