@@ -406,7 +406,17 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
     };
     let mut lo = doc.to_lopdf_document(&opts, &mut warnings);
     compress_streams(&mut lo, COMPRESSION);
-    let mut bytes = Vec::new();
+    // Room for the streams and the objects around them, so the file is not
+    // copied as it grows.
+    let streams: usize = lo
+        .objects
+        .values()
+        .map(|o| match o {
+            lopdf::Object::Stream(s) => s.content.len() + 64,
+            _ => 64,
+        })
+        .sum();
+    let mut bytes = Vec::with_capacity(streams + 4096);
     lo.save_to(&mut bytes)
         .map_err(|e| PdfError::Font(format!("cannot write the PDF: {e}")))?;
     fix_document_id(&mut bytes);
