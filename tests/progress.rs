@@ -5,13 +5,9 @@ mod util;
 use std::process::Command;
 use util::TestDir;
 
-/// Rows enough for a few seconds' run (the bar waits a second before it
-/// shows): an optimised build is some twenty times faster.
-const ROWS: usize = if cfg!(debug_assertions) {
-    30_000
-} else {
-    600_000
-};
+/// Rows enough for the bar to be drawn while it moves (it is told every
+/// 8192 rows, and redraws at most twenty times a second).
+const ROWS: usize = 60_000;
 
 fn long_batch() -> TestDir {
     let t = TestDir::new("progress");
@@ -49,9 +45,9 @@ fn run_piped(t: &TestDir) -> util::Run {
     }
 }
 
-#[test]
-fn off_means_no_bar_even_on_a_terminal() {
-    let t = long_batch();
+/// `check --format csv > out.csv` on a pseudo-terminal (`script`, from
+/// util-linux), so stderr alone is the terminal; what the terminal showed.
+fn on_a_terminal(t: &TestDir, setting: &str) -> String {
     let inner = format!(
         "'{}' check ws/big --format csv > out.csv",
         env!("CARGO_BIN_EXE_limen")
@@ -59,12 +55,24 @@ fn off_means_no_bar_even_on_a_terminal() {
     let out = Command::new("script")
         .args(["-qfec", &inner, "typescript"])
         .current_dir(&t.root)
-        .env("LIMEN_PROGRESS", "off")
+        .env("SOURCE_DATE_EPOCH", "1795000000")
+        .env("NO_COLOR", "1")
+        .env("LIMEN_PROGRESS", setting)
         .stdin(std::process::Stdio::null())
         .output()
         .expect("script (util-linux) is installed; .ci/run makes sure");
-    assert!(out.status.success());
-    let terminal = std::fs::read_to_string(t.path("typescript")).unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    std::fs::read_to_string(t.path("typescript")).unwrap()
+}
+
+#[test]
+fn off_means_no_bar_even_on_a_terminal() {
+    let t = long_batch();
+    let terminal = on_a_terminal(&t, "off");
     assert!(!terminal.contains("rows checked"), "{terminal}");
     assert!(!terminal.contains("results written"), "{terminal}");
 }
@@ -78,28 +86,7 @@ fn the_bar_goes_to_a_terminal_stderr_only_and_never_into_the_csv() {
     assert_eq!(piped.code, 0, "{}", piped.stderr);
     assert_eq!(piped.stderr, "", "stderr is a pipe: no bar");
     assert!(piped.stdout.starts_with("report,revision,lab_id"));
-
-    // `script` (util-linux) runs the command on a pseudo-terminal; stdout is
-    // redirected to a file inside it, so only stderr is the terminal.
-    let inner = format!(
-        "'{}' check ws/big --format csv > out.csv",
-        env!("CARGO_BIN_EXE_limen")
-    );
-    let out = Command::new("script")
-        .args(["-qfec", &inner, "typescript"])
-        .current_dir(&t.root)
-        .env("SOURCE_DATE_EPOCH", "1795000000")
-        .env("NO_COLOR", "1")
-        .env("LIMEN_PROGRESS", "now")
-        .stdin(std::process::Stdio::null())
-        .output()
-        .expect("script (util-linux) is installed; .ci/run makes sure");
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let terminal = std::fs::read_to_string(t.path("typescript")).unwrap();
+    let terminal = on_a_terminal(&t, "now");
     assert!(terminal.contains("rows checked"), "{terminal}");
     let whole = format!("{ROWS}")
         .as_bytes()
