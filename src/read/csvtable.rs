@@ -445,6 +445,20 @@ mod tests {
     }
 
     #[test]
+    fn a_character_split_across_two_cells_is_not_utf8() {
+        // Each cell alone is broken; run together they would read as "é".
+        let e = collect(b"a,b\nok,\xc3\xa9\n\xc3,\xa9\n").unwrap_err();
+        assert!(
+            matches!(&e, ReadError::Csv { line: 3, message, .. } if message == "not valid UTF-8 text"),
+            "{e}"
+        );
+        assert_eq!(
+            collect("a,b\n é ,\u{a0}x\u{3000}\n".as_bytes()).unwrap(),
+            [(2, "é".to_string(), "x".to_string())]
+        );
+    }
+
+    #[test]
     fn bom_crlf_any_order_and_missing_optional() {
         let rows = collect(b"\xEF\xBB\xBFb,A\r\nx, 1 \r\ny,2\r\n").unwrap();
         assert_eq!(rows[0], (2, "1".into(), "x".into()));
