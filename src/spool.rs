@@ -258,12 +258,13 @@ fn scratch() -> std::io::Result<std::fs::File> {
             ".limen-rows-{}-{stamp}-{attempt}",
             std::process::id()
         ));
-        match std::fs::OpenOptions::new()
-            .read(true)
-            .write(true)
-            .create_new(true)
-            .open(&path)
-        {
+        let mut options = std::fs::OpenOptions::new();
+        options.read(true).write(true).create_new(true);
+        // Client results: readable by this user alone, for the moment the
+        // name exists.
+        #[cfg(unix)]
+        std::os::unix::fs::OpenOptionsExt::mode(&mut options, 0o600);
+        match options.open(&path) {
             Ok(f) => {
                 let _ = std::fs::remove_file(&path);
                 return Ok(f);
