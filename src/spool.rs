@@ -511,6 +511,32 @@ mod tests {
     }
 
     #[test]
+    fn spills_only_past_the_memory_it_may_hold_and_counts_rows() {
+        let names = names();
+        let many = (IN_MEMORY / 150) as u64 * 2;
+        let mut small = Spool::new();
+        assert!(small.is_empty());
+        for i in 0..500 {
+            small.push(&row(i, &names)).unwrap();
+        }
+        assert!(!small.is_empty());
+        assert_eq!(small.len(), 500);
+        assert!(small.file.is_none(), "500 rows stay in memory");
+        let (mut large, mut kept) = (Spool::new(), Spool::in_memory());
+        for i in 0..many {
+            large.push(&row(i, &names)).unwrap();
+            kept.push(&row(i, &names)).unwrap();
+        }
+        assert!(large.file.is_some());
+        assert!(
+            large.held.len() < IN_MEMORY,
+            "memory is given back on spilling"
+        );
+        assert!(kept.file.is_none(), "in_memory never spills");
+        assert_eq!((large.len(), kept.len()), (many as usize, many as usize));
+    }
+
+    #[test]
     fn names_come_back_shared() {
         let names = names();
         let mut spool = Spool::in_memory();
