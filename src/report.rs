@@ -162,23 +162,14 @@ pub struct Evaluation {
     rows: crate::spool::Spool,
 }
 
-/// Reads the batch's QC rows, then every row once: the client results are
-/// classified and gathered for the QC rules (the QC rows may stand anywhere
-/// in the file, a spike before its parent), and the rules judged.
-pub fn evaluate<'a>(
-    ws: &'a Workspace,
-    batch: &'a Batch,
-    revision: u32,
-    run: &RunInfo,
-) -> Result<Evaluation, EvalError> {
-    evaluate_watched(ws, batch, revision, run, &mut |_| {})
-}
-
 /// How often the checking pass says how far it has read.
 pub const TICK_ROWS: u64 = 8192;
 
-/// As `evaluate`, telling `rows_read` every `TICK_ROWS` rows how many rows
-/// the checking pass has read, for a progress display.
+/// Reads the batch's QC rows, then every row once: the client results are
+/// classified, gathered for the QC rules (the QC rows may stand anywhere in
+/// the file, a spike before its parent) and spooled, and the rules judged.
+/// `rows_read` hears every `TICK_ROWS` rows how many the checking pass has
+/// read, for a progress display.
 pub fn evaluate_watched<'a>(
     ws: &'a Workspace,
     batch: &'a Batch,
