@@ -74,12 +74,10 @@ pub fn run(a: Args) -> Result<i32, Error> {
         manifest: None,
     };
     let progress = Progress::counting();
-    progress.message("reports recomputed");
-    let mut sized = false;
+    // The count is known from the first report on.
     let found = impact(&ledger, &against, since, &run, &mut |n, of| {
-        if !sized {
+        if n == 0 {
             progress.phase(of as u64, "reports recomputed");
-            sized = true;
         }
         progress.at(n as u64);
     });
