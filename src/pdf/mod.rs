@@ -1,17 +1,24 @@
-//! PDF export: laid-out pages to bytes with printpdf's page operations.
+//! PDF export: laid-out pages to bytes. printpdf builds the document and
+//! its fonts; the pages' content streams are written by `content`, in the
+//! bytes printpdf's operators would give.
 //! The embedded Liberation Sans (SIL OFL 1.1) is subset per document to the
 //! characters it uses. No I/O here.
 
 use crate::layout::{Item, Measure, Page};
+use content::{Content, Glyphs};
+#[cfg(test)]
+use printpdf::{Color, Line, LinePoint, PaintMode, Point, Rect, TextMatrix};
 use printpdf::{
-    Color, FontId, Line, LinePoint, Op, PaintMode, ParsedFont, PdfDocument, PdfFont, PdfFontHandle,
-    PdfPage, PdfSaveOptions, Point, Pt, Rect, TextItem, TextMatrix,
+    FontId, Op, ParsedFont, PdfDocument, PdfFont, PdfFontHandle, PdfPage, PdfSaveOptions, Pt,
+    TextItem,
 };
 use std::collections::{BTreeSet, HashMap};
-use std::sync::OnceLock;
+use std::sync::{Mutex, OnceLock};
 
-const REGULAR: &[u8] = include_bytes!("../report-templates/fonts/LiberationSans-Regular.ttf");
-const BOLD: &[u8] = include_bytes!("../report-templates/fonts/LiberationSans-Bold.ttf");
+mod content;
+
+const REGULAR: &[u8] = include_bytes!("../../report-templates/fonts/LiberationSans-Regular.ttf");
+const BOLD: &[u8] = include_bytes!("../../report-templates/fonts/LiberationSans-Bold.ttf");
 
 #[derive(Debug, thiserror::Error, PartialEq)]
 pub enum PdfError {
@@ -32,7 +39,14 @@ pub struct Face {
     /// space (as `clean` shows them): most text, without hashing.
     latin: [f32; 256],
     missing: f32,
+    /// Subsets made lately, by the characters they hold: a run of
+    /// certificates mostly uses the same characters, and cutting the face
+    /// costs more than copying a cut one.
+    subsets: Mutex<Vec<(BTreeSet<char>, ParsedFont)>>,
 }
+
+/// How many subsets of each face are kept.
+const SUBSETS_KEPT: usize = 8;
 
 impl Face {
     fn load(bytes: &'static [u8]) -> Result<Face, PdfError> {
@@ -64,6 +78,7 @@ impl Face {
             advance,
             latin,
             missing,
+            subsets: Mutex::new(Vec::new()),
         })
     }
 
@@ -82,8 +97,31 @@ impl Face {
             .sum()
     }
 
-    /// The face cut down to `chars` (and .notdef), as a font printpdf embeds whole.
+    /// The face cut down to `chars` (and .notdef), as a font printpdf embeds
+    /// whole; the same characters give the same subset, so a recent one is
+    /// reused.
     fn subset(&self, chars: &BTreeSet<char>) -> Result<ParsedFont, PdfError> {
+        let kept = |v: &Vec<(BTreeSet<char>, ParsedFont)>| {
+            v.iter().find(|(c, _)| c == chars).map(|(_, f)| f.clone())
+        };
+        // A poisoned lock only means another thread panicked mid-push; the
+        // list is still a list of finished subsets.
+        let lock = || self.subsets.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(f) = kept(&lock()) {
+            return Ok(f);
+        }
+        let f = self.cut(chars)?;
+        let mut v = lock();
+        if kept(&v).is_none() {
+            if v.len() == SUBSETS_KEPT {
+                v.remove(0);
+            }
+            v.push((chars.clone(), f.clone()));
+        }
+        Ok(f)
+    }
+
+    fn cut(&self, chars: &BTreeSet<char>) -> Result<ParsedFont, PdfError> {
         use allsorts::binary::read::ReadScope;
         use allsorts::font_data::FontData;
         let mut ids: Vec<u16> = chars
@@ -176,6 +214,7 @@ pub struct Meta {
     pub created: i64,
 }
 
+#[cfg(test)]
 fn rgb((r, g, b): (f32, f32, f32)) -> Color {
     Color::Rgb(printpdf::Rgb {
         r,
@@ -206,6 +245,7 @@ fn stable_id(bytes: &[u8]) -> String {
     format!("{h:032X}")
 }
 
+#[cfg(test)]
 /// One text run as its own text section that sets its font before showing
 /// anything: text shown before a font is set is invisible.
 fn text_ops(
@@ -233,7 +273,6 @@ fn text_ops(
     ]
 }
 
-/// Writes pages to PDF bytes. Characters the font lacks are drawn as "?"
 /// The text as the embedded font can show it: characters it lacks become
 /// '?' and are collected for the warning.
 fn shown_text(fonts: &Fonts, text: &str, bold: bool, missing: &mut BTreeSet<char>) -> String {
@@ -250,13 +289,14 @@ fn shown_text(fonts: &Fonts, text: &str, bold: bool, missing: &mut BTreeSet<char
         .collect()
 }
 
-/// Embeds, per face, a subset holding just the characters the pages use.
+/// Embeds, per face, a subset holding just the characters the pages use,
+/// and returns each embedded face's character map.
 fn embed_fonts(
     doc: &mut PdfDocument,
     pages: &[Page],
     fonts: &Fonts,
     ids: &[FontId; 2],
-) -> Result<(), PdfError> {
+) -> Result<[Option<Glyphs>; 2], PdfError> {
     let mut used: [BTreeSet<char>; 2] = [BTreeSet::new(), BTreeSet::new()];
     let mut ignored = BTreeSet::new();
     for p in pages {
@@ -266,18 +306,24 @@ fn embed_fonts(
             }
         }
     }
+    let mut glyphs = [None, None];
     for (k, set) in used.iter().enumerate() {
         if !set.is_empty() {
             let face = fonts.face(k == 1);
+            let subset = face.subset(set)?;
+            glyphs[k] = Some(Glyphs::new(
+                subset.codepoint_to_glyph.iter().map(|(c, g)| (*c, *g)),
+            ));
             doc.resources
                 .fonts
                 .map
-                .insert(ids[k].clone(), PdfFont::new(face.subset(set)?));
+                .insert(ids[k].clone(), PdfFont::new(subset));
         }
     }
-    Ok(())
+    Ok(glyphs)
 }
 
+#[cfg(test)]
 /// A stroked line between two points, in PDF coordinates.
 fn line_ops(a: (f32, f32), b: (f32, f32), width: f32, color: (f32, f32, f32)) -> [Op; 3] {
     let point = |(x, y): (f32, f32)| LinePoint {
@@ -296,6 +342,7 @@ fn line_ops(a: (f32, f32), b: (f32, f32), width: f32, color: (f32, f32, f32)) ->
     ]
 }
 
+#[cfg(test)]
 /// A filled rectangle from its lower-left corner, in PDF coordinates.
 fn rect_ops(x: f32, y: f32, w: f32, h: f32, color: (f32, f32, f32)) -> [Op; 2] {
     [
@@ -330,47 +377,126 @@ fn set_info(doc: &mut PdfDocument, meta: &Meta) -> Result<(), PdfError> {
     Ok(())
 }
 
+/// Writes pages to PDF bytes. Characters the font lacks are drawn as "?"
 /// and returned, so the caller can say so.
 pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfError> {
+    assemble(pages, meta, Streams::Own)
+}
+
+/// Who writes the pages' content streams: limen's own writer, or (as the
+/// reference the tests hold it to) printpdf's operators.
+#[derive(Clone, Copy, PartialEq)]
+enum Streams {
+    Own,
+    #[cfg(test)]
+    Printpdf,
+}
+
+/// What printpdf needs to see of the text to describe each font (its
+/// widths and its map back to Unicode): per face, the last character shown
+/// with each glyph, as printpdf's own scan of the operators would record.
+struct Shown {
+    last: [Vec<Option<char>>; 2],
+}
+
+impl Shown {
+    fn note(&mut self, face: usize, glyph: u16, c: char) {
+        let v = &mut self.last[face];
+        let g = glyph as usize;
+        if v.len() <= g {
+            v.resize(g + 1, None);
+        }
+        v[g] = Some(c);
+    }
+
+    /// One text section that shows each noted character once, per face.
+    fn ops(&self, ids: &[FontId; 2]) -> Vec<Op> {
+        let mut ops = Vec::new();
+        for (k, last) in self.last.iter().enumerate() {
+            let text: String = last.iter().flatten().collect();
+            if text.is_empty() {
+                continue;
+            }
+            ops.extend([
+                Op::StartTextSection,
+                Op::SetFont {
+                    font: PdfFontHandle::External(ids[k].clone()),
+                    size: Pt(1.0),
+                },
+                Op::ShowText {
+                    items: vec![TextItem::Text(text)],
+                },
+                Op::EndTextSection,
+            ]);
+        }
+        ops
+    }
+}
+
+fn assemble(
+    pages: &[Page],
+    meta: &Meta,
+    streams: Streams,
+) -> Result<(Vec<u8>, Vec<char>), PdfError> {
     if pages.is_empty() {
         return Err(PdfError::NoPages);
     }
     let fonts = Fonts::get()?;
     let mut missing = BTreeSet::new();
-    let shown = |text: &str, bold: bool, missing: &mut BTreeSet<char>| -> String {
-        shown_text(fonts, text, bold, missing)
-    };
     let mut doc = PdfDocument::new(&meta.title);
     let ids = [FontId("F1".into()), FontId("F2".into())];
-    embed_fonts(&mut doc, pages, fonts, &ids)?;
+    let glyphs = embed_fonts(&mut doc, pages, fonts, &ids)?;
+    let mut shown = Shown {
+        last: [Vec::new(), Vec::new()],
+    };
+    let mut contents = Vec::with_capacity(pages.len());
+    let mut text = String::new();
     for (n, p) in pages.iter().enumerate() {
         let page_no = n + 1;
         finite(page_no, "page size", &[p.width, p.height])?;
         let h = p.height;
-        let mut ops = Vec::with_capacity(p.items.len() * 4);
+        // Filled only by the tests' reference path.
+        #[cfg_attr(not(test), allow(unused_mut))]
+        let mut ops = Vec::new();
+        let mut content = Content::with_capacity(p.items.len() * 64);
         for it in &p.items {
             match it {
                 Item::Text {
                     x,
                     y,
-                    text,
+                    text: raw,
                     size,
                     bold,
                     color,
                 } => {
                     finite(page_no, "text position", &[*x, *y, *size])?;
-                    let text = shown(text, *bold, &mut missing);
+                    text.clear();
+                    text.push_str(&shown_text(fonts, raw, *bold, &mut missing));
                     if text.trim().is_empty() {
                         continue;
                     }
-                    ops.extend(text_ops(
-                        &ids[*bold as usize],
-                        *x,
-                        h - *y,
-                        *size,
-                        *color,
-                        text,
-                    ));
+                    let face = *bold as usize;
+                    match streams {
+                        Streams::Own => {
+                            // Every face with text was embedded above.
+                            let Some(g) = &glyphs[face] else { continue };
+                            for c in text.chars() {
+                                if let Some(id) = g.find(c) {
+                                    shown.note(face, id, c);
+                                }
+                            }
+                            content.text(&ids[face].0, *size, *color, (*x, h - *y), &text, g);
+                        }
+                        #[cfg(test)]
+                        Streams::Printpdf => ops.extend(text_ops(
+                            &ids[face],
+                            *x,
+                            h - *y,
+                            *size,
+                            *color,
+                            text.clone(),
+                        )),
+                    }
                 }
                 Item::Line {
                     x1,
@@ -381,7 +507,12 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
                     color,
                 } => {
                     finite(page_no, "line", &[*x1, *y1, *x2, *y2, *width])?;
-                    ops.extend(line_ops((*x1, h - *y1), (*x2, h - *y2), *width, *color));
+                    let (a, b) = ((*x1, h - *y1), (*x2, h - *y2));
+                    match streams {
+                        Streams::Own => content.line(a, b, *width, *color),
+                        #[cfg(test)]
+                        Streams::Printpdf => ops.extend(line_ops(a, b, *width, *color)),
+                    }
                 }
                 Item::Rect {
                     x,
@@ -391,12 +522,23 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
                     color,
                 } => {
                     finite(page_no, "rectangle", &[*x, *y, *w, *rh])?;
-                    ops.extend(rect_ops(*x, h - *y - *rh, *w, *rh, *color));
+                    let y0 = h - *y - *rh;
+                    match streams {
+                        Streams::Own => content.rect(*x, y0, *w, *rh, *color),
+                        #[cfg(test)]
+                        Streams::Printpdf => ops.extend(rect_ops(*x, y0, *w, *rh, *color)),
+                    }
                 }
             }
         }
+        contents.push(content.into_bytes());
         let mm = |pt: f32| printpdf::Mm(pt * 25.4 / 72.0);
         doc.pages.push(PdfPage::new(mm(p.width), mm(p.height), ops));
+    }
+    if streams == Streams::Own {
+        // printpdf learns the glyphs each font needs from the operators;
+        // its content streams are replaced below.
+        doc.pages[0].ops = shown.ops(&ids);
     }
     set_info(&mut doc, meta)?;
     let mut warnings = Vec::new();
@@ -405,6 +547,9 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
         ..PdfSaveOptions::default()
     };
     let mut lo = doc.to_lopdf_document(&opts, &mut warnings);
+    if streams == Streams::Own {
+        set_contents(&mut lo, contents)?;
+    }
     compress_streams(&mut lo, COMPRESSION);
     // Room for the streams and the objects around them, so the file is not
     // copied as it grows.
@@ -421,6 +566,33 @@ pub fn write(pages: &[Page], meta: &Meta) -> Result<(Vec<u8>, Vec<char>), PdfErr
         .map_err(|e| PdfError::Font(format!("cannot write the PDF: {e}")))?;
     fix_document_id(&mut bytes);
     Ok((bytes, missing.into_iter().collect()))
+}
+
+/// Puts each page's own content stream in place of printpdf's.
+fn set_contents(lo: &mut lopdf::Document, contents: Vec<Vec<u8>>) -> Result<(), PdfError> {
+    let pages = lo.get_pages();
+    if pages.len() != contents.len() {
+        return Err(PdfError::Font(format!(
+            "{} pages laid out, {} in the document",
+            contents.len(),
+            pages.len()
+        )));
+    }
+    for ((_, page), bytes) in pages.into_iter().zip(contents) {
+        let no_stream =
+            |e: lopdf::Error| PdfError::Font(format!("a page has no content stream: {e}"));
+        let id = lo
+            .get_object(page)
+            .and_then(|p| p.as_dict())
+            .and_then(|d| d.get(b"Contents"))
+            .and_then(|c| c.as_reference())
+            .map_err(no_stream)?;
+        lo.get_object_mut(id)
+            .and_then(|o| o.as_stream_mut())
+            .map_err(no_stream)?
+            .set_content(bytes);
+    }
+    Ok(())
 }
 
 /// The deflate level of every stream, chosen by measurement (DEVELOPERS.md,
@@ -607,6 +779,100 @@ mod tests {
     fn unknown_characters_are_reported() {
         let (_, missing) = write(&[page(vec![text("铅")])], &meta()).unwrap();
         assert_eq!(missing, vec!['铅']);
+    }
+
+    /// Reference: printpdf's own operators, encoded by lopdf, give the same
+    /// file byte for byte as limen's content writer.
+    fn same_as_printpdf(pages: &[Page]) {
+        let own = write(pages, &meta()).unwrap();
+        let reference = assemble(pages, &meta(), Streams::Printpdf).unwrap();
+        assert!(own.0 == reference.0, "the files differ");
+        assert_eq!(own.1, reference.1);
+    }
+
+    #[test]
+    fn content_streams_match_printpdf_on_the_demo_certificates() {
+        let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-batches");
+        let ws = crate::read::Workspace::load(&root).unwrap();
+        let templates = crate::templates::Templates::load(Some(&root)).unwrap();
+        let run = crate::report::RunInfo {
+            issued_at: chrono::DateTime::from_timestamp(1_795_000_000, 0).unwrap(),
+            tool_version: "t".into(),
+        };
+        let cert = crate::render::certificate::Certificate {
+            templates: &templates,
+        };
+        let mut pages_seen = 0;
+        for name in crate::starter::DEMO_BATCHES {
+            let batch = crate::read::Batch::load(&root.join(name)).unwrap();
+            let report = crate::report::build(&ws, &batch, 0, &run).unwrap();
+            let pages = cert.layout(&report, Fonts::get().unwrap()).unwrap();
+            pages_seen += pages.len();
+            same_as_printpdf(&pages);
+        }
+        assert!(pages_seen >= 3, "{pages_seen} pages");
+    }
+
+    #[test]
+    fn content_streams_match_printpdf_on_odd_pages() {
+        // Characters outside Latin-1, ones the font lacks, control
+        // characters, blank runs, negative and fractional positions, and a
+        // glyph reached from two characters in turn.
+        let odd = |t: &str, x: f32, y: f32, size: f32, bold: bool| Item::Text {
+            x,
+            y,
+            text: t.into(),
+            size,
+            bold,
+            color: (0.2, 0.5, 1.0 / 3.0),
+        };
+        let pages = vec![
+            page(vec![
+                odd("Pb ≤ 90 mg/kg, 25 µg/L — δ", 56.692_91, 100.25, 9.5, false),
+                odd("铅 and \t tab\n(line)", -3.0, 0.0, 12.0, true),
+                odd("   ", 10.0, 10.0, 8.0, false),
+                odd("\u{a0}non-breaking\u{a0}", 1e-7, 841.89, 7.25, false),
+                Item::Line {
+                    x1: 0.5,
+                    y1: 700.0,
+                    x2: 594.5,
+                    y2: 700.0,
+                    width: 0.25,
+                    color: (0.0, 0.0, 0.0),
+                },
+                Item::Rect {
+                    x: 40.0,
+                    y: 60.0,
+                    w: 515.276,
+                    h: 12.0,
+                    color: (0.93, 0.93, 0.93),
+                },
+            ]),
+            page(vec![]),
+            page(vec![odd("second page, bold", 300.0, 400.0, 16.0, true)]),
+        ];
+        same_as_printpdf(&pages);
+    }
+
+    #[test]
+    fn a_kept_subset_is_the_subset_cut_afresh() {
+        let face = Face::load(REGULAR).unwrap();
+        let sets: Vec<BTreeSet<char>> = (0..SUBSETS_KEPT as u8 + 3)
+            .map(|k| {
+                "Pb 0123 mg/kg"
+                    .chars()
+                    .chain([char::from(b'c' + k)])
+                    .collect()
+            })
+            .collect();
+        // Twice round, more sets than are kept: hits, misses and evictions.
+        for _ in 0..2 {
+            for set in &sets {
+                assert!(face.subset(set).unwrap() == face.cut(set).unwrap());
+            }
+        }
+        assert!(face.subsets.lock().unwrap().len() == SUBSETS_KEPT);
+        assert!(face.subset(&sets[0]).unwrap() != face.subset(&sets[1]).unwrap());
     }
 
     #[test]
