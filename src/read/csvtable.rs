@@ -29,9 +29,10 @@ pub const fn opt(name: &'static str) -> Col {
 pub struct Row<'a> {
     pub file: &'a str,
     pub line: u64,
-    record: &'a csv::ByteRecord,
-    /// The record's cells run together, checked as UTF-8 once.
+    /// The record's text, checked as UTF-8 once.
     text: &'a str,
+    /// Where each cell lies in `text`; every edge is a character boundary.
+    cells: &'a [(usize, usize)],
     map: &'a [Option<usize>],
     cols: &'a [Col],
 }
@@ -39,11 +40,10 @@ pub struct Row<'a> {
 impl<'a> Row<'a> {
     pub fn get(&self, col: usize) -> &'a str {
         match self.map[col] {
-            // Every cell edge is a character boundary (checked on reading).
             Some(i) => self
-                .record
-                .range(i)
-                .and_then(|r| self.text.get(r))
+                .cells
+                .get(i)
+                .and_then(|&(a, z)| self.text.get(a..z))
                 .map_or("", trim_cell),
             None => "",
         }
@@ -166,6 +166,8 @@ pub fn read_rows<E: From<ReadError>>(
     read_rows_from(file, bytes, cols, each)
 }
 
+use std::collections::VecDeque;
+
 /// The byte source under the CSV reader, noting where each CR and LF falls,
 /// so lines are counted from byte offsets without holding the file (the csv
 /// crate's own line count drifts on CRLF files).
@@ -174,7 +176,7 @@ struct Tracked<R> {
     /// Bytes handed on so far (after any BOM).
     pos: u64,
     /// CR and LF offsets not yet passed by a record start.
-    ends: std::collections::VecDeque<(u64, u8)>,
+    ends: VecDeque<(u64, u8)>,
     /// Whether anything but whitespace has been read.
     text: bool,
     /// A BOM at the very start is dropped, as if it were not there.
@@ -221,7 +223,7 @@ impl Lines {
     /// The line of a record (or error) starting at `byte`, and how many of
     /// the CR/LF offsets lie before it. A start on a CR or LF (where the csv
     /// crate reports a CRLF file's records) moves past it.
-    fn walk(&self, ends: &std::collections::VecDeque<(u64, u8)>, byte: u64) -> (u64, usize) {
+    fn walk(&self, ends: &VecDeque<(u64, u8)>, byte: u64) -> (u64, usize) {
         let (mut s, mut line, mut passed) = (byte, self.line, 0);
         for &(p, b) in ends {
             if p > s {
@@ -239,7 +241,7 @@ impl Lines {
     }
 
     /// Moves to the record starting at `start` and returns its line.
-    fn advance(&mut self, ends: &mut std::collections::VecDeque<(u64, u8)>, start: u64) -> u64 {
+    fn advance(&mut self, ends: &mut VecDeque<(u64, u8)>, start: u64) -> u64 {
         let (line, passed) = self.walk(ends, start);
         ends.drain(..passed);
         self.line = line;
@@ -247,80 +249,49 @@ impl Lines {
     }
 
     /// The line of an error at `byte`, without moving.
-    fn peek(&self, ends: &std::collections::VecDeque<(u64, u8)>, byte: u64) -> u64 {
+    fn peek(&self, ends: &VecDeque<(u64, u8)>, byte: u64) -> u64 {
         self.walk(ends, byte).0
     }
 }
 
-/// Reads the CSV file `file` from `source` with columns `cols`, calling
-/// `each` for every data row in file order. Memory stays flat in the file's
-/// length: only the current record is held.
-// Long (about 120 lines) on purpose: header checks and the row loop share
-// the column map and the reused record; this is the hot path of every CSV.
-pub fn read_rows_from<E: From<ReadError>>(
-    file: &str,
-    source: impl std::io::Read,
-    cols: &[Col],
-    mut each: impl FnMut(&Row<'_>) -> Result<(), E>,
-) -> Result<(), E> {
-    let names = || cols.iter().map(|c| c.name.to_string()).collect::<Vec<_>>();
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(true)
-        .flexible(false)
-        .buffer_capacity(1 << 16)
-        .from_reader(Tracked {
-            inner: source,
-            pos: 0,
-            ends: Default::default(),
-            text: false,
-            at_start: true,
-        });
-    let mut lines = Lines { line: 1 };
-    let csv_err = |e: csv::Error, lines: &Lines, ends: &std::collections::VecDeque<(u64, u8)>| {
-        if let csv::ErrorKind::Io(source) = e.kind() {
-            return ReadError::Io {
-                file: file.to_string(),
-                source: std::io::Error::new(source.kind(), source.to_string()),
-            };
-        }
-        ReadError::Csv {
+/// The error of a csv reader, at its line.
+fn csv_err(file: &str, e: csv::Error, lines: &Lines, ends: &VecDeque<(u64, u8)>) -> ReadError {
+    if let csv::ErrorKind::Io(source) = e.kind() {
+        return ReadError::Io {
             file: file.to_string(),
-            line: e
-                .position()
-                .map(|p| lines.peek(ends, p.byte()))
-                .unwrap_or(1),
-            message: match e.kind() {
-                csv::ErrorKind::Utf8 { .. } => "not valid UTF-8 text".into(),
-                csv::ErrorKind::UnequalLengths {
-                    expected_len, len, ..
-                } => format!("{len} cells where the header has {expected_len}"),
-                _ => e.to_string(),
-            },
-        }
-    };
-    let empty = || ReadError::Empty {
-        file: file.to_string(),
-        expected: names(),
-    };
-    let header = match reader.headers() {
-        Ok(h) => h.clone(),
-        Err(e) => {
-            let r = reader.get_ref();
-            return Err(csv_err(e, &lines, &r.ends).into());
-        }
-    };
-    if header.iter().all(|h| h.trim().is_empty()) {
-        // A file of whitespace only is empty, not a file of blank columns:
-        // read on to tell.
-        let mut record = csv::ByteRecord::new();
-        while let Ok(true) = reader.read_byte_record(&mut record) {}
-        if !reader.get_ref().text {
-            return Err(empty().into());
-        }
+            source: std::io::Error::new(source.kind(), source.to_string()),
+        };
     }
+    ReadError::Csv {
+        file: file.to_string(),
+        line: e
+            .position()
+            .map(|p| lines.peek(ends, p.byte()))
+            .unwrap_or(1),
+        message: match e.kind() {
+            csv::ErrorKind::Utf8 { .. } => "not valid UTF-8 text".into(),
+            csv::ErrorKind::UnequalLengths {
+                expected_len, len, ..
+            } => ragged(*len as usize, *expected_len as usize),
+            _ => e.to_string(),
+        },
+    }
+}
+
+fn ragged(len: usize, expected: usize) -> String {
+    format!("{len} cells where the header has {expected}")
+}
+
+/// The columns of `header` in the order of `cols`, or why they will not do.
+fn column_map<'h>(
+    file: &str,
+    header: impl Iterator<Item = &'h str>,
+    cols: &[Col],
+) -> Result<Vec<Option<usize>>, ReadError> {
+    let names = || cols.iter().map(|c| c.name.to_string()).collect::<Vec<_>>();
     let mut map: Vec<Option<usize>> = vec![None; cols.len()];
     let mut unknown = Vec::new();
-    for (i, h) in header.iter().enumerate() {
+    for (i, h) in header.enumerate() {
         let h = norm_header(h);
         match cols.iter().position(|c| c.name == h) {
             Some(c) if map[c].is_some() => {
@@ -328,8 +299,7 @@ pub fn read_rows_from<E: From<ReadError>>(
                     Loc::new(file, 1, cols[c].name),
                     "column appears twice in the header",
                     "keep one column of each name",
-                )
-                .into());
+                ));
             }
             Some(c) => map[c] = Some(i),
             None if h.is_empty() => unknown.push("(blank header cell)".to_string()),
@@ -341,8 +311,7 @@ pub fn read_rows_from<E: From<ReadError>>(
             file: file.to_string(),
             columns: unknown,
             known: names(),
-        }
-        .into());
+        });
     }
     let missing: Vec<String> = cols
         .iter()
@@ -354,60 +323,327 @@ pub fn read_rows_from<E: From<ReadError>>(
         return Err(ReadError::MissingColumns {
             file: file.to_string(),
             columns: missing,
-        }
-        .into());
+        });
     }
+    Ok(map)
+}
+
+/// The source read line by line into one reused buffer: the quick path for
+/// records that need no CSV quoting rules.
+struct LineReader<R> {
+    inner: R,
+    buf: Vec<u8>,
+    /// The unread bytes are `buf[at..len]`.
+    at: usize,
+    len: usize,
+    eof: bool,
+}
+
+impl<R: std::io::Read> LineReader<R> {
+    fn new(inner: R) -> LineReader<R> {
+        LineReader {
+            inner,
+            buf: vec![0; 1 << 16],
+            at: 0,
+            len: 0,
+            eof: false,
+        }
+    }
+
+    /// Reads more after the unread bytes (moved to the front first).
+    fn fill(&mut self) -> std::io::Result<()> {
+        if self.at > 0 {
+            self.buf.copy_within(self.at..self.len, 0);
+            self.len -= self.at;
+            self.at = 0;
+        }
+        if self.len == self.buf.len() {
+            self.buf.resize(self.buf.len() * 2, 0);
+        }
+        loop {
+            match self.inner.read(&mut self.buf[self.len..]) {
+                Ok(0) => {
+                    self.eof = true;
+                    return Ok(());
+                }
+                Ok(n) => {
+                    self.len += n;
+                    return Ok(());
+                }
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(e),
+            }
+        }
+    }
+
+    /// The next line, without its LF, as a range of `buf`; None at the end.
+    /// It stays unread until `take`.
+    fn peek_line(&mut self) -> std::io::Result<Option<(usize, usize, bool)>> {
+        let mut from = self.at;
+        loop {
+            if let Some(i) = memchr::memchr(b'\n', &self.buf[from..self.len]) {
+                let end = from + i;
+                return Ok(Some((self.at, end, true)));
+            }
+            if self.eof {
+                return Ok((self.at < self.len).then_some((self.at, self.len, false)));
+            }
+            let seen = self.len - self.at;
+            self.fill()?;
+            from = self.at + seen;
+        }
+    }
+
+    /// `prefix`, the unread bytes, then the rest of the source.
+    fn rest(self, prefix: &[u8]) -> std::io::Chain<std::io::Cursor<Vec<u8>>, R> {
+        let mut head = prefix.to_vec();
+        head.extend_from_slice(&self.buf[self.at..self.len]);
+        std::io::Read::chain(std::io::Cursor::new(head), self.inner)
+    }
+}
+
+const BOM: &[u8] = b"\xEF\xBB\xBF";
+
+/// A line the quick path reads as the csv crate would: no quote and no CR
+/// but the one before its LF.
+fn plain_line(line: &[u8]) -> Option<&[u8]> {
+    let line = line.strip_suffix(b"\r").unwrap_or(line);
+    memchr::memchr2(b'"', b'\r', line).is_none().then_some(line)
+}
+
+/// Reads the CSV file `file` from `source` with columns `cols`, calling
+/// `each` for every data row in file order. Memory stays flat in the file's
+/// length: only the current record is held.
+///
+/// Lines without quotes are split on their commas here; from the first
+/// line that has one (or a CR of its own) to the end of the file, the csv
+/// crate reads the records. Both give the same rows, lines and errors
+/// (checked in the tests against the csv crate alone).
+pub fn read_rows_from<E: From<ReadError>>(
+    file: &str,
+    source: impl std::io::Read,
+    cols: &[Col],
+    each: impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
+    read_rows_by(file, source, cols, Reader::Quick, each)
+}
+
+#[derive(Clone, Copy, PartialEq)]
+enum Reader {
+    Quick,
+    #[cfg(test)]
+    CsvOnly,
+}
+
+fn read_rows_by<E: From<ReadError>>(
+    file: &str,
+    source: impl std::io::Read,
+    cols: &[Col],
+    reader: Reader,
+    mut each: impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
+    let io = |source: std::io::Error| ReadError::Io {
+        file: file.to_string(),
+        source,
+    };
+    let mut lines = LineReader::new(source);
+    // The BOM, and a header the quick path can take.
+    let mut header = None;
+    let mut boms = 0;
+    if reader == Reader::Quick {
+        while lines.len < 6 && !lines.eof {
+            lines.fill().map_err(io)?;
+        }
+        // As the csv crate's path reads a file: its source drops a BOM,
+        // and csv_core drops another that follows.
+        for _ in 0..2 {
+            if lines.buf[lines.at..lines.len].starts_with(BOM) {
+                lines.at += 3;
+                boms += 1;
+            }
+        }
+        if let Some((a, z, _)) = lines.peek_line().map_err(io)? {
+            header = plain_line(&lines.buf[a..z])
+                .and_then(|h| std::str::from_utf8(h).ok())
+                .filter(|h| !h.trim().is_empty())
+                .map(|h| (h.to_string(), z));
+        }
+    }
+    let Some((header, header_end)) = header else {
+        // The csv crate's path drops the BOMs itself.
+        return csv_rows(file, lines.rest(&BOM.repeat(boms)), None, cols, each);
+    };
+    let width = header.split(',').count();
+    let map = column_map(file, header.split(','), cols)?;
+    lines.at = (header_end + 1).min(lines.len);
+    let mut line = 1u64;
+    let mut cells: Vec<(usize, usize)> = Vec::with_capacity(width);
+    while let Some((a, z, lf)) = lines.peek_line().map_err(io)? {
+        line += 1;
+        let Some(bytes) = plain_line(&lines.buf[a..z]) else {
+            // The csv crate from here on, with the line count carried over.
+            // The LF before the line keeps csv_core from dropping a BOM
+            // that starts it, as it would at the start of a file.
+            let rest = lines.rest(b"\n");
+            return csv_rows(file, rest, Some((width, &map, line - 1)), cols, each);
+        };
+        let next = if lf { z + 1 } else { z };
+        if bytes.is_empty() {
+            lines.at = next;
+            continue;
+        }
+        cells.clear();
+        let mut from = 0;
+        for c in memchr::memchr_iter(b',', bytes) {
+            cells.push((from, c));
+            from = c + 1;
+        }
+        cells.push((from, bytes.len()));
+        if cells.len() != width {
+            return Err(ReadError::Csv {
+                file: file.to_string(),
+                line,
+                message: ragged(cells.len(), width),
+            }
+            .into());
+        }
+        let Ok(text) = std::str::from_utf8(bytes) else {
+            return Err(not_utf8(file, line).into());
+        };
+        deliver(file, line, text, &cells, &map, cols, &mut each)?;
+        lines.at = next;
+    }
+    Ok(())
+}
+
+fn not_utf8(file: &str, line: u64) -> ReadError {
+    ReadError::Csv {
+        file: file.to_string(),
+        line,
+        message: "not valid UTF-8 text".into(),
+    }
+}
+
+/// Hands on a record unless all its cells are blank.
+fn deliver<E>(
+    file: &str,
+    line: u64,
+    text: &str,
+    cells: &[(usize, usize)],
+    map: &[Option<usize>],
+    cols: &[Col],
+    each: &mut impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
+    if cells
+        .iter()
+        .all(|&(a, z)| text.get(a..z).is_none_or(|c| c.trim().is_empty()))
+    {
+        return Ok(());
+    }
+    each(&Row {
+        file,
+        line,
+        text,
+        cells,
+        map,
+        cols,
+    })
+}
+
+/// The records from `source` through the csv crate: the whole file with its
+/// header when `after` is None, else the records after the header, whose
+/// width and columns are known, from the line given on.
+// Long (about 100 lines) on purpose: header checks and the row loop share
+// the column map and the reused record; the general path of every CSV.
+fn csv_rows<E: From<ReadError>>(
+    file: &str,
+    source: impl std::io::Read,
+    after: Option<(usize, &[Option<usize>], u64)>,
+    cols: &[Col],
+    mut each: impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(after.is_none())
+        // Past the header the width is checked here, against the header's.
+        .flexible(after.is_some())
+        .buffer_capacity(1 << 16)
+        .from_reader(Tracked {
+            inner: source,
+            pos: 0,
+            ends: Default::default(),
+            text: after.is_some(),
+            at_start: after.is_none(),
+        });
+    let mut lines = Lines {
+        line: after.map_or(1, |(_, _, line)| line),
+    };
+    let owned_map;
+    let (width, map) = match after {
+        Some((width, map, _)) => (Some(width), map),
+        None => {
+            let header = match reader.headers() {
+                Ok(h) => h.clone(),
+                Err(e) => {
+                    let r = reader.get_ref();
+                    return Err(csv_err(file, e, &lines, &r.ends).into());
+                }
+            };
+            if header.iter().all(|h| h.trim().is_empty()) {
+                // A file of whitespace only is empty, not a file of blank
+                // columns: read on to tell.
+                let mut record = csv::ByteRecord::new();
+                while let Ok(true) = reader.read_byte_record(&mut record) {}
+                if !reader.get_ref().text {
+                    return Err(ReadError::Empty {
+                        file: file.to_string(),
+                        expected: cols.iter().map(|c| c.name.to_string()).collect(),
+                    }
+                    .into());
+                }
+            }
+            owned_map = column_map(file, header.iter(), cols)?;
+            (None, &owned_map[..])
+        }
+    };
     // Bytes, then one UTF-8 check of the whole record: a check per cell
     // costs more than the parse on a long file.
     let mut record = csv::ByteRecord::new();
+    let mut cells: Vec<(usize, usize)> = Vec::new();
     loop {
         match reader.read_byte_record(&mut record) {
             Ok(true) => {}
             Ok(false) => break,
             Err(e) => {
                 let r = reader.get_ref();
-                return Err(csv_err(e, &lines, &r.ends).into());
+                return Err(csv_err(file, e, &lines, &r.ends).into());
             }
         }
         let start = record.position().map(|p| p.byte()).unwrap_or(0);
         let line = lines.advance(&mut reader.get_mut().ends, start);
-        let text = match std::str::from_utf8(record.as_slice()) {
-            // A character split across two cells is as invalid as a broken one.
-            Ok(t)
-                if (0..record.len()).all(|i| {
-                    record
-                        .range(i)
-                        .is_some_and(|r| t.is_char_boundary(r.start) && t.is_char_boundary(r.end))
-                }) =>
-            {
-                t
-            }
-            _ => {
+        if let Some(width) = width {
+            if record.len() != width {
                 return Err(ReadError::Csv {
                     file: file.to_string(),
                     line,
-                    message: "not valid UTF-8 text".into(),
+                    message: ragged(record.len(), width),
                 }
                 .into());
             }
-        };
-        if (0..record.len()).all(|i| {
-            record
-                .range(i)
-                .and_then(|r| text.get(r))
-                .is_none_or(|c| c.trim().is_empty())
-        }) {
-            continue;
         }
-        let row = Row {
-            file,
-            line,
-            record: &record,
-            text,
-            map: &map,
-            cols,
+        cells.clear();
+        cells.extend((0..record.len()).filter_map(|i| record.range(i).map(|r| (r.start, r.end))));
+        let text = match std::str::from_utf8(record.as_slice()) {
+            // A character split across two cells is as invalid as a broken one.
+            Ok(t)
+                if cells
+                    .iter()
+                    .all(|&(a, z)| t.is_char_boundary(a) && t.is_char_boundary(z)) =>
+            {
+                t
+            }
+            _ => return Err(not_utf8(file, line).into()),
         };
-        each(&row)?;
+        deliver(file, line, text, &cells, map, cols, &mut each)?;
     }
     Ok(())
 }
@@ -434,6 +670,82 @@ mod tests {
     }
 
     const COLS: &[Col] = &[req("a"), opt("b")];
+
+    /// Rows (line and both cells) or the error's text.
+    fn read_as(bytes: &[u8], reader: Reader) -> Result<Vec<(u64, String, String)>, String> {
+        let mut out = Vec::new();
+        read_rows_by("t.csv", bytes, COLS, reader, |r| {
+            out.push((r.line, r.text(0), r.text(1)));
+            Ok::<(), ReadError>(())
+        })
+        .map_err(|e| e.to_string())?;
+        Ok(out)
+    }
+
+    // Reference: the csv crate reading the whole file. Pieces that matter
+    // to the split: commas, quotes, CR and LF alone and together, blanks,
+    // a BOM, a broken and a whole two-byte character, and long lines that
+    // cross the reader's buffer.
+    fn piece() -> impl proptest::strategy::Strategy<Value = Vec<u8>> {
+        proptest::prop_oneof![
+            proptest::strategy::Just(b"x".to_vec()),
+            proptest::strategy::Just(b"7".to_vec()),
+            proptest::strategy::Just(b",".to_vec()),
+            proptest::strategy::Just(b"\n".to_vec()),
+            proptest::strategy::Just(b"\r\n".to_vec()),
+            proptest::strategy::Just(b"\r".to_vec()),
+            proptest::strategy::Just(b"\"".to_vec()),
+            proptest::strategy::Just(b" ".to_vec()),
+            proptest::strategy::Just(b"\xEF\xBB\xBF".to_vec()),
+            proptest::strategy::Just("é".as_bytes().to_vec()),
+            proptest::strategy::Just(b"\xc3".to_vec()),
+            proptest::strategy::Just(vec![b'y'; 70_000]),
+        ]
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(2000))]
+        #[test]
+        fn the_quick_reader_reads_as_the_csv_crate(
+            bom in proptest::bool::ANY,
+            header in proptest::sample::select(vec!["a,b\n", "b,a\r\n", "a\n", "\"a\",b\n", "\na,b\n", "a,c\n", ""]),
+            body in proptest::collection::vec(piece(), 0..24),
+        ) {
+            let mut bytes = Vec::new();
+            if bom {
+                bytes.extend_from_slice(b"\xEF\xBB\xBF");
+            }
+            bytes.extend_from_slice(header.as_bytes());
+            for p in &body {
+                bytes.extend_from_slice(p);
+            }
+            proptest::prop_assert_eq!(
+                read_as(&bytes, Reader::Quick),
+                read_as(&bytes, Reader::CsvOnly)
+            );
+        }
+    }
+
+    #[test]
+    fn a_quote_hands_the_rest_of_the_file_to_the_csv_reader() {
+        let bytes = b"a,b\n1,x\n\"2\",\"y\nz\"\n3,w\n\n4\n";
+        let quick = read_as(bytes, Reader::Quick);
+        assert_eq!(quick, read_as(bytes, Reader::CsvOnly));
+        // The quoted cell spans lines 3 and 4; the line count carries on.
+        assert_eq!(
+            quick.unwrap_err(),
+            "t.csv:7: malformed CSV: 1 cells where the header has 2"
+        );
+        let ok = b"a,b\n1,x\n\"2\",\"y\nz\"\n3,w\n";
+        assert_eq!(
+            read_as(ok, Reader::Quick).unwrap(),
+            [
+                (2, "1".to_string(), "x".to_string()),
+                (3, "2".to_string(), "y\nz".to_string()),
+                (5, "3".to_string(), "w".to_string())
+            ]
+        );
+    }
 
     fn collect(bytes: &[u8]) -> Result<Vec<(u64, String, String)>, ReadError> {
         let mut out = Vec::new();
