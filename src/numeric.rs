@@ -181,7 +181,21 @@ pub fn push_plain(out: &mut String, d: Decimal) {
 /// the scale), without the formatting machinery: a results CSV writes
 /// several decimals per row.
 pub fn push_decimal(out: &mut String, d: Decimal) {
-    let mut buf = [b'0'; 40];
+    let mut buf = [0; DECIMAL_ROOM];
+    match std::str::from_utf8(decimal_ascii(d, &mut buf)) {
+        Ok(t) => out.push_str(t),
+        // Digits, sign and point are ASCII.
+        Err(_) => unreachable!("a decimal's text is ASCII"),
+    }
+}
+
+/// Room for any decimal's text: 29 digits, a sign, a point and a zero.
+pub const DECIMAL_ROOM: usize = 40;
+
+/// `d` as its `Display` writes it, in the end of `buf`.
+pub fn decimal_ascii(d: Decimal, buf: &mut [u8; DECIMAL_ROOM]) -> &[u8] {
+    // A short mantissa is padded to the scale with these zeros.
+    buf.fill(b'0');
     let end = buf.len();
     let mut n = 0;
     let mut m = d.mantissa().unsigned_abs();
@@ -198,24 +212,33 @@ pub fn push_decimal(out: &mut String, d: Decimal) {
         n += 1;
     }
     let scale = d.scale() as usize;
-    // The buffer is zeros already: a short mantissa is padded to the scale.
     let len = n.max(scale);
-    let digits = &buf[end - len..];
-    if d.is_sign_negative() {
-        out.push('-');
-    }
     let whole = len - scale;
-    if whole == 0 {
-        out.push('0');
-    }
-    for &b in &digits[..whole] {
-        out.push(b as char);
-    }
+    let mut start = end - len;
     if scale > 0 {
-        out.push('.');
-        for &b in &digits[whole..] {
-            out.push(b as char);
-        }
+        // The whole digits move left by one to make room for the point.
+        buf.copy_within(start..start + whole, start - 1);
+        start -= 1;
+        buf[start + whole] = b'.';
+    }
+    if whole == 0 {
+        start -= 1;
+        buf[start] = b'0';
+    }
+    if d.is_sign_negative() {
+        start -= 1;
+        buf[start] = b'-';
+    }
+    &buf[start..]
+}
+
+/// `plain`, as `decimal_ascii` writes it.
+pub fn plain_ascii(d: Decimal, buf: &mut [u8; DECIMAL_ROOM]) -> &[u8] {
+    let n = d.normalize();
+    if n.is_zero() {
+        b"0"
+    } else {
+        decimal_ascii(n, buf)
     }
 }
 
@@ -247,7 +270,11 @@ mod tests {
             push_plain(&mut p, d);
             let n = d.normalize();
             let expected = if n.is_zero() { "0".to_string() } else { n.to_string() };
-            proptest::prop_assert_eq!(p, expected);
+            proptest::prop_assert_eq!(&p, &expected);
+            let mut buf = [b'x'; DECIMAL_ROOM];
+            let shown = d.to_string();
+            proptest::prop_assert_eq!(decimal_ascii(d, &mut buf), shown.as_bytes());
+            proptest::prop_assert_eq!(plain_ascii(d, &mut buf), expected.as_bytes());
         }
     }
 

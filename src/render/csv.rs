@@ -2,8 +2,9 @@
 //! rounded values side by side.
 
 use super::Render;
-use crate::numeric::{push_decimal, push_plain};
+use crate::numeric::{DECIMAL_ROOM, decimal_ascii, plain_ascii};
 use crate::report::{Report, ReportRow};
+use rust_decimal::Decimal;
 
 pub const HEADER: [&str; 25] = [
     "report",
@@ -59,6 +60,30 @@ struct Line {
     cells: usize,
 }
 
+/// Whether a cell holds a comma, a quote, CR or LF: eight bytes at a time
+/// (a byte equal to one of them leaves a zero byte after the XOR).
+fn needs_quotes(s: &[u8]) -> bool {
+    const LO: u64 = 0x0101_0101_0101_0101;
+    const HI: u64 = 0x8080_8080_8080_8080;
+    let zero_in = |t: u64| t.wrapping_sub(LO) & !t & HI != 0;
+    let mut words = s.chunks_exact(8);
+    for w in &mut words {
+        let mut x = [0u8; 8];
+        x.copy_from_slice(w);
+        let x = u64::from_le_bytes(x);
+        if [b',', b'"', b'\r', b'\n']
+            .iter()
+            .any(|&c| zero_in(x ^ (LO * c as u64)))
+        {
+            return true;
+        }
+    }
+    words
+        .remainder()
+        .iter()
+        .any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n'))
+}
+
 impl Line {
     fn start(&mut self) {
         self.buf.clear();
@@ -70,7 +95,7 @@ impl Line {
             self.buf.push(b',');
         }
         self.cells += 1;
-        if s.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n')) {
+        if needs_quotes(s) {
             self.buf.push(b'"');
             for &b in s {
                 if b == b'"' {
@@ -88,29 +113,29 @@ impl Line {
         self.cell(neutralise(s).as_bytes());
     }
 
+    /// A decimal as its `Display` writes it (never quoted), empty if absent;
+    /// `plain` without meaningless trailing zeros.
+    fn decimal(&mut self, v: Option<Decimal>, plain: bool) {
+        let mut buf = [0; DECIMAL_ROOM];
+        let text: &[u8] = match v {
+            None => b"",
+            Some(v) if plain => plain_ascii(v, &mut buf),
+            Some(v) => decimal_ascii(v, &mut buf),
+        };
+        if self.cells > 0 {
+            self.buf.push(b',');
+        }
+        self.cells += 1;
+        self.buf.extend_from_slice(text);
+    }
+
     fn end(&mut self) {
         self.buf.push(b'\n');
     }
 }
 
 fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportRow) {
-    use rust_decimal::Decimal;
     use std::fmt::Write as _;
-    // Decimals as Display writes them, empty when absent.
-    let decimal = |line: &mut Line, num: &mut String, v: Option<Decimal>| {
-        num.clear();
-        if let Some(v) = v {
-            push_decimal(num, v);
-        }
-        line.cell(num.as_bytes());
-    };
-    let exact = |line: &mut Line, num: &mut String, v: Option<Decimal>| {
-        num.clear();
-        if let Some(v) = v {
-            push_plain(num, v);
-        }
-        line.cell(num.as_bytes());
-    };
     line.start();
     line.text(report.report);
     num.clear();
@@ -126,18 +151,18 @@ fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportR
     push_date(num, r.analyzed_on);
     line.cell(num.as_bytes());
     line.text(&r.reported);
-    decimal(line, num, r.value);
+    line.decimal(r.value, false);
     // Over range, the reading was above the highest standard: no number
     // stands for the result, so both value columns are empty.
     let over = r.state == crate::classify::State::OverRange;
-    exact(line, num, (!over).then_some(r.value_unrounded));
+    line.decimal((!over).then_some(r.value_unrounded), true);
     line.text(r.unit.symbol());
     line.text(r.state.name());
-    decimal(line, num, Some(r.mdl));
-    decimal(line, num, Some(r.loq));
-    exact(line, num, Some(r.dilution));
+    line.decimal(Some(r.mdl), false);
+    line.decimal(Some(r.loq), false);
+    line.decimal(Some(r.dilution), true);
     line.text(r.spec.as_deref().unwrap_or(""));
-    exact(line, num, r.spec_limit);
+    line.decimal(r.spec_limit, true);
     line.text(r.verdict.map(|v| v.name()).unwrap_or(""));
     if r.qualifiers.is_empty() {
         line.cell(b"");
@@ -146,7 +171,7 @@ fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportR
     }
     line.text(&r.limits_row);
     for v in [r.uncertainty, r.ld, r.beta_at_limit] {
-        decimal(line, num, v);
+        line.decimal(v, false);
     }
     line.end();
 }
@@ -268,7 +293,7 @@ mod tests {
     proptest::proptest! {
         #[test]
         fn lines_are_quoted_as_the_csv_crate_quotes_them(
-            cells in proptest::collection::vec("[a-z ,\"\r\n'é;=-]{0,6}", 25)
+            cells in proptest::collection::vec("[a-z ,\"\r\n'é;=-]{0,6}|[a-z ,\"\r\n'é;=-]{7,30}|[a-zé]{0,30}[,\"\r\n]?[a-z]{0,30}", 25)
         ) {
             let mut line = Line::default();
             line.start();
@@ -281,6 +306,24 @@ mod tests {
                 .from_writer(Vec::new());
             w.write_record(&cells).unwrap();
             proptest::prop_assert_eq!(line.buf, w.into_inner().unwrap());
+        }
+    }
+
+    #[test]
+    fn a_special_byte_is_seen_at_every_place_of_a_word() {
+        for len in 0..26 {
+            for at in 0..len {
+                for special in [b',', b'"', b'\r', b'\n'] {
+                    let mut s = vec![b'a'; len];
+                    s[at] = special;
+                    assert!(needs_quotes(&s), "{len} {at} {special}");
+                    // Neighbours of the specials (and high bytes) are not.
+                    for near in [special - 1, special + 1, special | 0x80, 0xff, 0] {
+                        s[at] = near;
+                        assert!(!needs_quotes(&s), "{len} {at} {near}");
+                    }
+                }
+            }
         }
     }
 
