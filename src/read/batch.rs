@@ -1,6 +1,6 @@
 //! A client batch: batch.toml (who, what, when) and its results CSV.
 
-use super::csvtable::{Col, opt, read_file, read_rows_from, req};
+use super::csvtable::{Col, Skip, opt, read_file, read_rows_from, read_rows_skipping, req};
 use super::error::{Loc, ReadError};
 use super::vocab::DecisionRule;
 use super::vocab::Kind;
@@ -341,7 +341,10 @@ pub fn each_result_in<E: From<ReadError>>(
     // The line of the first error, parse or evaluation, for the repeat search.
     let mut failed_at: Option<u64> = None;
     let reader = source.open(file)?;
-    let outcome = read_rows_from(file, reader, COLUMNS, |r| {
+    // The QC pass passes over sample rows unread: the check pass reads them.
+    let samples: Skip = (KIND, |cell| cell.eq_ignore_ascii_case(b"sample"));
+    let skip = (pass == Pass::Qc).then_some(samples);
+    let outcome = read_rows_skipping(file, reader, COLUMNS, skip, |r| {
         let mut parse = || -> Result<Option<ResultRow>, ReadError> {
             let kind_text = r.required(KIND)?;
             let kind = Kind::parse(kind_text).ok_or_else(|| {

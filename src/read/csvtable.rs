@@ -428,7 +428,36 @@ pub fn read_rows_from<E: From<ReadError>>(
     cols: &[Col],
     each: impl FnMut(&Row<'_>) -> Result<(), E>,
 ) -> Result<(), E> {
-    read_rows_by(file, source, cols, Reader::Quick, each)
+    read_rows_by(file, source, cols, Reader::Quick, None, each)
+}
+
+/// Rows a pass has no use for, told by one cell: the column (its index in
+/// the `Col` list) and a test of the cell's bytes, trimmed of ASCII
+/// whitespace. A line without quotes whose cell passes the test is passed
+/// over unchecked (not split, not checked as UTF-8), so a pass that skips
+/// must leave the file's errors to another that reads every row.
+pub type Skip = (usize, fn(&[u8]) -> bool);
+
+/// `read_rows_from`, passing over the rows `skip` tells.
+pub fn read_rows_skipping<E: From<ReadError>>(
+    file: &str,
+    source: impl std::io::Read,
+    cols: &[Col],
+    skip: Option<Skip>,
+    each: impl FnMut(&Row<'_>) -> Result<(), E>,
+) -> Result<(), E> {
+    read_rows_by(file, source, cols, Reader::Quick, skip, each)
+}
+
+/// The `n`th cell (from 0) of a line without quotes.
+fn nth_cell(line: &[u8], n: usize) -> Option<&[u8]> {
+    let mut from = 0;
+    let mut commas = memchr::memchr_iter(b',', line);
+    for _ in 0..n {
+        from = commas.next()? + 1;
+    }
+    let to = commas.next().unwrap_or(line.len());
+    Some(&line[from..to])
 }
 
 #[derive(Clone, Copy, PartialEq)]
@@ -443,6 +472,7 @@ fn read_rows_by<E: From<ReadError>>(
     source: impl std::io::Read,
     cols: &[Col],
     reader: Reader,
+    skip: Option<Skip>,
     mut each: impl FnMut(&Row<'_>) -> Result<(), E>,
 ) -> Result<(), E> {
     let io = |source: std::io::Error| ReadError::Io {
@@ -491,7 +521,12 @@ fn read_rows_by<E: From<ReadError>>(
             return csv_rows(file, rest, Some((width, &map, line - 1)), cols, each);
         };
         let next = if lf { z + 1 } else { z };
-        if bytes.is_empty() {
+        let passed_over = |(col, test): Skip| {
+            map[col]
+                .and_then(|i| nth_cell(bytes, i))
+                .is_some_and(|cell| test(cell.trim_ascii()))
+        };
+        if bytes.is_empty() || skip.is_some_and(passed_over) {
             lines.at = next;
             continue;
         }
@@ -704,7 +739,7 @@ mod tests {
     /// Rows (line and both cells) or the error's text.
     fn read_as(bytes: &[u8], reader: Reader) -> Result<Vec<(u64, String, String)>, String> {
         let mut out = Vec::new();
-        read_rows_by("t.csv", bytes, COLS, reader, |r| {
+        read_rows_by("t.csv", bytes, COLS, reader, None, |r| {
             out.push((r.line, r.text(0), r.text(1)));
             Ok::<(), ReadError>(())
         })
@@ -781,6 +816,28 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn skipped_rows_are_passed_over_unread_and_the_rest_read_in_full() {
+        let bytes = b"b,a\nskip,1\n SKIP ,\xff\nskip\nkeep,2\n\"skip\",3\nkeep,\xff\n";
+        let mut seen = Vec::new();
+        let skip: Skip = (1, |c| c.eq_ignore_ascii_case(b"skip"));
+        let e = read_rows_skipping("t.csv", &bytes[..], COLS, Some(skip), |r| {
+            seen.push((r.line, r.text(1)));
+            Ok::<(), ReadError>(())
+        })
+        .unwrap_err();
+        // Lines 2 to 4 are passed over, bad bytes and all; line 6 has a quote
+        // and is read in full; line 7 is not UTF-8.
+        assert_eq!(seen, [(5, "keep".to_string()), (6, "skip".to_string())]);
+        assert_eq!(
+            e.to_string(),
+            "t.csv:7: malformed CSV: not valid UTF-8 text"
+        );
+        // Without the skip the first bad line stops the read.
+        let e = read_as(bytes, Reader::Quick).unwrap_err();
+        assert_eq!(e, "t.csv:3: malformed CSV: not valid UTF-8 text");
     }
 
     #[test]
