@@ -47,7 +47,8 @@ pub struct Resolved<'w> {
     pub value: Decimal,
     pub mdl: Decimal,
     pub loq: Decimal,
-    /// The highest calibration standard carried into sample units.
+    /// The highest calibration standard carried into sample units, for a
+    /// result over range.
     pub upper: Option<Decimal>,
     pub over_range: bool,
     pub spec: Option<ResolvedSpec<'w>>,
@@ -290,8 +291,8 @@ pub fn resolve_with<'w>(
     }))
 }
 
-/// The calibrated upper range in the sample's terms, and whether the
-/// reading lies above it.
+/// Whether the reading lies above the calibrated upper range, and if so
+/// the range in the sample's terms (what the result is reported above).
 fn upper_range(
     row: &ResultRow,
     limits: &LimitRow,
@@ -311,10 +312,14 @@ fn upper_range(
                             .into(),
                     }
                 })?;
+            if row.reading <= upper_at_reading {
+                // Only a result over range is reported against the range.
+                return Ok((None, false));
+            }
             let in_sample = reading_to_sample(row, upper, upper_unit)
                 .ok_or_else(|| overflow(row, "the upper range"))?
                 .ok_or_else(|| unit_mismatch(row, limits, "the upper range"))?;
-            (Some(in_sample), row.reading > upper_at_reading)
+            (Some(in_sample), true)
         }
     })
 }
@@ -507,14 +512,16 @@ mod tests {
         let ws = workspace(LIMITS, SPECS);
         let at = resolved(&solid("1000", "1", "0.100", "50"), &ws);
         assert!(!at.over_range);
-        // 1000 µg/L × 50 mL / 0.100 g / 1000 = 500 mg/kg
-        assert_eq!(at.upper, Some(d("500")));
+        assert_eq!(at.upper, None);
         let above = resolved(&solid("1000.001", "1", "0.100", "50"), &ws);
         assert!(above.over_range);
+        // 1000 µg/L × 50 mL / 0.100 g / 1000 = 500 mg/kg
+        assert_eq!(above.upper, Some(d("500")));
         let below = resolved(&solid("999", "1", "0.100", "50"), &ws);
         assert!(!below.over_range);
-        // Dilution scales the range the sample could be reported over.
-        let diluted = resolved(&solid("10", "10", "0.100", "50"), &ws);
+        // Dilution scales the range the sample is reported over.
+        let diluted = resolved(&solid("1001", "10", "0.100", "50"), &ws);
+        assert!(diluted.over_range);
         assert_eq!(diluted.upper, Some(d("5000")));
     }
 

@@ -27,6 +27,9 @@ pub struct Spool {
     /// one allocation per name.
     names: Vec<Arc<str>>,
     by_address: HashMap<usize, u32, crate::fasthash::Build>,
+    /// The last name met in each of the six places of a row, by address:
+    /// most rows repeat the row before.
+    last: [(usize, u32); 6],
 }
 
 impl Spool {
@@ -48,6 +51,7 @@ impl Spool {
             rows: 0,
             names: Vec::new(),
             by_address: HashMap::default(),
+            last: [(0, 0); 6],
         }
     }
 
@@ -129,8 +133,18 @@ impl Spool {
         Ok(())
     }
 
-    fn name(&mut self, s: &Arc<str>) -> u32 {
+    fn name(&mut self, place: usize, s: &Arc<str>) -> u32 {
         let address = Arc::as_ptr(s) as *const u8 as usize;
+        // A kept name's address is never 0 and never reused (see below).
+        if self.last[place].0 == address {
+            return self.last[place].1;
+        }
+        let i = self.name_by_address(s, address);
+        self.last[place] = (address, i);
+        i
+    }
+
+    fn name_by_address(&mut self, s: &Arc<str>, address: usize) -> u32 {
         if let Some(&i) = self.by_address.get(&address) {
             return i;
         }
@@ -143,13 +157,13 @@ impl Spool {
 
     fn encode(&mut self, r: &ReportRow) {
         let names = [
-            self.name(&r.analyte),
-            self.name(&r.matrix),
-            self.name(&r.method),
-            self.name(&r.spec_citation),
-            self.name(&r.limits_row),
+            self.name(0, &r.analyte),
+            self.name(1, &r.matrix),
+            self.name(2, &r.method),
+            self.name(3, &r.spec_citation),
+            self.name(4, &r.limits_row),
             match &r.spec {
-                Some(s) => self.name(s),
+                Some(s) => self.name(5, s),
                 None => u32::MAX,
             },
         ];

@@ -113,6 +113,16 @@ impl Line {
         self.cell(neutralise(s).as_bytes());
     }
 
+    /// A word of limen's own vocabulary (a unit, a state, a verdict), which
+    /// never needs quoting or neutralising (tested below).
+    fn word(&mut self, w: &'static str) {
+        if self.cells > 0 {
+            self.buf.push(b',');
+        }
+        self.cells += 1;
+        self.buf.extend_from_slice(w.as_bytes());
+    }
+
     /// A decimal as its `Display` writes it (never quoted), empty if absent;
     /// `plain` without meaningless trailing zeros.
     fn decimal(&mut self, v: Option<Decimal>, plain: bool) {
@@ -156,14 +166,14 @@ fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportR
     // stands for the result, so both value columns are empty.
     let over = r.state == crate::classify::State::OverRange;
     line.decimal((!over).then_some(r.value_unrounded), true);
-    line.text(r.unit.symbol());
-    line.text(r.state.name());
+    line.word(r.unit.symbol());
+    line.word(r.state.name());
     line.decimal(Some(r.mdl), false);
     line.decimal(Some(r.loq), false);
     line.decimal(Some(r.dilution), true);
     line.text(r.spec.as_deref().unwrap_or(""));
     line.decimal(r.spec_limit, true);
-    line.text(r.verdict.map(|v| v.name()).unwrap_or(""));
+    line.word(r.verdict.map(|v| v.name()).unwrap_or(""));
     if r.qualifiers.is_empty() {
         line.cell(b"");
     } else {
@@ -307,6 +317,25 @@ mod tests {
             w.write_record(&cells).unwrap();
             proptest::prop_assert_eq!(line.buf, w.into_inner().unwrap());
         }
+    }
+
+    #[test]
+    fn vocabulary_words_need_no_quoting() {
+        let words = crate::units::Unit::ALL
+            .iter()
+            .map(|u| u.symbol())
+            .chain(crate::classify::State::ALL.iter().map(|s| s.name()))
+            .chain(crate::classify::Verdict::ALL.iter().map(|v| v.name()));
+        let mut n = 0;
+        for w in words {
+            n += 1;
+            let mut quoted = Line::default();
+            quoted.text(w);
+            let mut plain = Line::default();
+            plain.word(w);
+            assert_eq!(quoted.buf, plain.buf, "{w}");
+        }
+        assert!(n >= 10, "{n} words");
     }
 
     #[test]
