@@ -189,7 +189,7 @@ impl Spool {
             r.loq_unrounded,
             r.dilution,
         ] {
-            b.extend_from_slice(&d.serialize());
+            put_decimal(b, d);
         }
         for d in [
             r.value,
@@ -202,7 +202,7 @@ impl Spool {
             match d {
                 Some(d) => {
                     b.push(1);
-                    b.extend_from_slice(&d.serialize());
+                    put_decimal(b, d);
                 }
                 None => b.push(0),
             }
@@ -293,6 +293,19 @@ fn scratch() -> std::io::Result<std::fs::File> {
     ))
 }
 
+/// A decimal in as few bytes as its mantissa needs: scale and sign, the
+/// mantissa's length, then the mantissa (little-endian). A rounded limit
+/// takes 4 bytes rather than 16; `Decoder::decimal` reads it back exactly
+/// (scale and sign of zero kept).
+fn put_decimal(b: &mut Vec<u8>, d: Decimal) {
+    let full = d.serialize();
+    let mantissa = &full[4..];
+    let n = mantissa.iter().rposition(|x| *x != 0).map_or(0, |k| k + 1);
+    b.push(full[2] | (full[3] & 0x80));
+    b.push(n as u8);
+    b.extend_from_slice(&mantissa[..n]);
+}
+
 struct Decoder<'a> {
     b: &'a [u8],
     at: usize,
@@ -335,7 +348,18 @@ impl Decoder<'_> {
     }
 
     fn decimal(&mut self) -> Result<Decimal, EvalError> {
-        Ok(Decimal::deserialize(self.bytes()?))
+        let [head, n] = self.bytes::<2>()?;
+        let n = n as usize;
+        if n > 12 || head & 0x7f > 28 {
+            return Err(corrupt());
+        }
+        let m = self.b.get(self.at..self.at + n).ok_or_else(corrupt)?;
+        self.at += n;
+        let mut full = [0u8; 16];
+        full[2] = head & 0x7f;
+        full[3] = head & 0x80;
+        full[4..4 + n].copy_from_slice(m);
+        Ok(Decimal::deserialize(full))
     }
 
     fn optional(&mut self) -> Result<Option<Decimal>, EvalError> {
@@ -497,6 +521,49 @@ mod tests {
         .into_iter()
         .map(Arc::from)
         .collect()
+    }
+
+    // Reference: rust_decimal's own 16-byte serialization, which the spool
+    // once wrote whole: the short form must give back the same bytes
+    // (equal decimals of another scale would print otherwise).
+    proptest::proptest! {
+        #[test]
+        fn decimals_come_back_bit_for_bit(
+            lo in proptest::prelude::any::<u32>(),
+            mid in proptest::prelude::any::<u32>(),
+            hi in proptest::prelude::any::<u32>(),
+            negative in proptest::prelude::any::<bool>(),
+            scale in 0u32..=28,
+            width in 0usize..3,
+        ) {
+            let parts = [lo, if width > 0 { mid } else { 0 }, if width > 1 { hi } else { 0 }];
+            let d = Decimal::from_parts(parts[0], parts[1], parts[2], negative, scale);
+            let mut b = Vec::new();
+            put_decimal(&mut b, d);
+            let names = [];
+            let mut dec = Decoder { b: &b, at: 0, names: &names };
+            let back = dec.decimal().unwrap();
+            proptest::prop_assert_eq!(back.serialize(), d.serialize());
+            proptest::prop_assert_eq!(dec.at, b.len());
+        }
+    }
+
+    #[test]
+    fn zeros_keep_their_scale_and_sign() {
+        for d in [d("0"), d("0.000"), -d("0.0"), d("1.20"), d("-0.031")] {
+            let mut b = Vec::new();
+            put_decimal(&mut b, d);
+            let names = [];
+            let back = Decoder {
+                b: &b,
+                at: 0,
+                names: &names,
+            }
+            .decimal()
+            .unwrap();
+            assert_eq!(back.serialize(), d.serialize(), "{d}");
+            assert_eq!(back.to_string(), d.to_string());
+        }
     }
 
     #[test]

@@ -9,8 +9,11 @@ use std::collections::HashMap;
 
 /// At least 2^16 bits (8 KB). A filter is allocated per batch, so a run
 /// of many small batches must not zero megabytes for each; the size grows
-/// with the file (see `for_len`).
+/// with a small file and is fixed for a large one (see `for_len`).
 const MIN_BITS: u64 = 1 << 16;
+/// The filter of every large file.
+const MAX_BITS: u64 = 1 << 26;
+const LARGE_FILE: u64 = 8 << 20;
 const PROBES: u64 = 6;
 /// Bits of one block, all of a key's probes in it (9 bits of hash each).
 const BLOCK: u64 = 512;
@@ -35,12 +38,19 @@ fn hashes(key: &[u8]) -> (u64, u64) {
 }
 
 impl Repeats {
-    /// A filter sized for a file of `len` bytes: a 100 MB file (about a
-    /// million rows) gets 2^26 bits, about one false "perhaps seen" in a
-    /// million keys.
+    /// A filter for a file of `len` bytes: a small file gets about 24 bits
+    /// per row of at least 40 bytes; from 8 MB (some 70,000 rows) on, every
+    /// file gets the same 2^26 bits (8 MB), so memory stays flat however
+    /// long the file: at a million rows about one false "perhaps seen" in a
+    /// million keys, and more beyond, each cleared by the confirming scan.
     pub fn for_len(len: u64) -> Repeats {
-        // About 24 bits per row of at least 40 bytes.
-        let bits = (len / 40 * 24).next_power_of_two().max(MIN_BITS);
+        let bits = if len >= LARGE_FILE {
+            MAX_BITS
+        } else {
+            (len / 40 * 24)
+                .next_power_of_two()
+                .clamp(MIN_BITS, MAX_BITS)
+        };
         Repeats {
             bits: vec![0; (bits / 64) as usize],
             mask: bits - 1,
@@ -120,6 +130,18 @@ mod tests {
         // Expected false alarms at 200,000 keys in 2^26 bits, 6 probes:
         // (1 − e^(−6·200000/2^26))^6 ≈ 3e-11 per key, so none.
         assert_eq!(false_alarms, 0);
+    }
+
+    #[test]
+    fn every_large_file_gets_the_same_filter() {
+        for len in [LARGE_FILE, 11_000_000, 110_000_000, 10_000_000_000] {
+            assert_eq!(
+                Repeats::for_len(len).bits.len() as u64 * 64,
+                MAX_BITS,
+                "{len}"
+            );
+        }
+        assert!(Repeats::for_len(LARGE_FILE - 1).bits.len() as u64 * 64 <= MAX_BITS / 8);
     }
 
     #[test]
