@@ -285,6 +285,14 @@ fn ragged(len: usize, expected: usize) -> String {
     format!("{len} cells where the header has {expected}")
 }
 
+fn ragged_row(file: &str, line: u64, len: usize, expected: usize) -> ReadError {
+    ReadError::Csv {
+        file: file.to_string(),
+        line,
+        message: ragged(len, expected),
+    }
+}
+
 /// The columns of `header` in the order of `cols`, or why they will not do.
 fn column_map<'h>(
     file: &str,
@@ -532,12 +540,7 @@ fn read_rows_by<E: From<ReadError>>(
         }
         split_commas(bytes, &mut cells);
         if cells.len() != width {
-            return Err(ReadError::Csv {
-                file: file.to_string(),
-                line,
-                message: ragged(cells.len(), width),
-            }
-            .into());
+            return Err(ragged_row(file, line, cells.len(), width).into());
         }
         let Ok(text) = std::str::from_utf8(bytes) else {
             return Err(not_utf8(file, line).into());
@@ -687,12 +690,7 @@ fn csv_rows<E: From<ReadError>>(
         let line = lines.advance(&mut reader.get_mut().ends, start);
         if let Some(width) = width {
             if record.len() != width {
-                return Err(ReadError::Csv {
-                    file: file.to_string(),
-                    line,
-                    message: ragged(record.len(), width),
-                }
-                .into());
+                return Err(ragged_row(file, line, record.len(), width).into());
             }
         }
         cells.clear();
