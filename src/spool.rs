@@ -523,6 +523,21 @@ mod tests {
         .collect()
     }
 
+    /// `d` written short and read back; every byte written is read.
+    fn round_trip(d: Decimal) -> Decimal {
+        let mut b = Vec::new();
+        put_decimal(&mut b, d);
+        let names = [];
+        let mut dec = Decoder {
+            b: &b,
+            at: 0,
+            names: &names,
+        };
+        let back = dec.decimal().unwrap();
+        assert_eq!(dec.at, b.len());
+        back
+    }
+
     // Reference: rust_decimal's own 16-byte serialization, which the spool
     // once wrote whole: the short form must give back the same bytes
     // (equal decimals of another scale would print otherwise).
@@ -538,29 +553,14 @@ mod tests {
         ) {
             let parts = [lo, if width > 0 { mid } else { 0 }, if width > 1 { hi } else { 0 }];
             let d = Decimal::from_parts(parts[0], parts[1], parts[2], negative, scale);
-            let mut b = Vec::new();
-            put_decimal(&mut b, d);
-            let names = [];
-            let mut dec = Decoder { b: &b, at: 0, names: &names };
-            let back = dec.decimal().unwrap();
-            proptest::prop_assert_eq!(back.serialize(), d.serialize());
-            proptest::prop_assert_eq!(dec.at, b.len());
+            proptest::prop_assert_eq!(round_trip(d).serialize(), d.serialize());
         }
     }
 
     #[test]
     fn zeros_keep_their_scale_and_sign() {
         for d in [d("0"), d("0.000"), -d("0.0"), d("1.20"), d("-0.031")] {
-            let mut b = Vec::new();
-            put_decimal(&mut b, d);
-            let names = [];
-            let back = Decoder {
-                b: &b,
-                at: 0,
-                names: &names,
-            }
-            .decimal()
-            .unwrap();
+            let back = round_trip(d);
             assert_eq!(back.serialize(), d.serialize(), "{d}");
             assert_eq!(back.to_string(), d.to_string());
         }

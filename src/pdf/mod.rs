@@ -450,7 +450,6 @@ fn assemble(
         last: [Vec::new(), Vec::new()],
     };
     let mut contents = Vec::with_capacity(pages.len());
-    let mut text = String::new();
     for (n, p) in pages.iter().enumerate() {
         let page_no = n + 1;
         finite(page_no, "page size", &[p.width, p.height])?;
@@ -470,8 +469,7 @@ fn assemble(
                     color,
                 } => {
                     finite(page_no, "text position", &[*x, *y, *size])?;
-                    text.clear();
-                    text.push_str(&shown_text(fonts, raw, *bold, &mut missing));
+                    let text = shown_text(fonts, raw, *bold, &mut missing);
                     if text.trim().is_empty() {
                         continue;
                     }
@@ -488,14 +486,9 @@ fn assemble(
                             content.text(&ids[face].0, *size, *color, (*x, h - *y), &text, g);
                         }
                         #[cfg(test)]
-                        Streams::Printpdf => ops.extend(text_ops(
-                            &ids[face],
-                            *x,
-                            h - *y,
-                            *size,
-                            *color,
-                            text.clone(),
-                        )),
+                        Streams::Printpdf => {
+                            ops.extend(text_ops(&ids[face], *x, h - *y, *size, *color, text))
+                        }
                     }
                 }
                 Item::Line {

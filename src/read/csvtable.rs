@@ -387,8 +387,9 @@ impl<R: std::io::Read> LineReader<R> {
         }
     }
 
-    /// The next line, without its LF, as a range of `buf`; None at the end.
-    /// It stays unread until `take`.
+    /// The next line, without its LF, as a range of `buf` and whether an
+    /// LF ended it; None at the end. It stays unread until the caller moves
+    /// `at` past it.
     fn peek_line(&mut self) -> std::io::Result<Option<(usize, usize, bool)>> {
         let mut from = self.at;
         loop {

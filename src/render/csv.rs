@@ -90,11 +90,22 @@ impl Line {
         self.cells = 0;
     }
 
-    fn cell(&mut self, s: &[u8]) {
+    /// The comma before every cell but the first.
+    fn next_cell(&mut self) {
         if self.cells > 0 {
             self.buf.push(b',');
         }
         self.cells += 1;
+    }
+
+    /// A cell known to need no quoting.
+    fn unquoted(&mut self, s: &[u8]) {
+        self.next_cell();
+        self.buf.extend_from_slice(s);
+    }
+
+    fn cell(&mut self, s: &[u8]) {
+        self.next_cell();
         if needs_quotes(s) {
             self.buf.push(b'"');
             for &b in s {
@@ -116,11 +127,7 @@ impl Line {
     /// A word of limen's own vocabulary (a unit, a state, a verdict), which
     /// never needs quoting or neutralising (tested below).
     fn word(&mut self, w: &'static str) {
-        if self.cells > 0 {
-            self.buf.push(b',');
-        }
-        self.cells += 1;
-        self.buf.extend_from_slice(w.as_bytes());
+        self.unquoted(w.as_bytes());
     }
 
     /// A decimal as its `Display` writes it (never quoted), empty if absent;
@@ -132,11 +139,7 @@ impl Line {
             Some(v) if plain => plain_ascii(v, &mut buf),
             Some(v) => decimal_ascii(v, &mut buf),
         };
-        if self.cells > 0 {
-            self.buf.push(b',');
-        }
-        self.cells += 1;
-        self.buf.extend_from_slice(text);
+        self.unquoted(text);
     }
 
     fn end(&mut self) {
