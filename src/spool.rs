@@ -306,6 +306,12 @@ fn put_decimal(b: &mut Vec<u8>, d: Decimal) {
     b.extend_from_slice(&mantissa[..n]);
 }
 
+fn keep_or_set(slot: &mut Arc<str>, name: &Arc<str>) {
+    if !Arc::ptr_eq(slot, name) {
+        *slot = name.clone();
+    }
+}
+
 struct Decoder<'a> {
     b: &'a [u8],
     at: usize,
@@ -342,9 +348,12 @@ impl Decoder<'_> {
         Ok(s)
     }
 
-    fn name(&mut self) -> Result<Arc<str>, EvalError> {
+    /// The next name into `slot`, which usually holds it already (from the
+    /// row before): then it is left as it is, with no count to change.
+    fn name_into(&mut self, slot: &mut Arc<str>) -> Result<(), EvalError> {
         let i = self.u32()?;
-        self.names.get(i as usize).cloned().ok_or_else(corrupt)
+        keep_or_set(slot, self.names.get(i as usize).ok_or_else(corrupt)?);
+        Ok(())
     }
 
     fn decimal(&mut self) -> Result<Decimal, EvalError> {
@@ -416,15 +425,16 @@ impl Decoder<'_> {
         self.string_into(&mut r.client_id)?;
         self.string_into(&mut r.description)?;
         self.string_into(&mut r.reported)?;
-        r.analyte = self.name()?;
-        r.matrix = self.name()?;
-        r.method = self.name()?;
-        r.spec_citation = self.name()?;
-        r.limits_row = self.name()?;
-        r.spec = match self.u32()? {
-            u32::MAX => None,
-            i => Some(self.names.get(i as usize).cloned().ok_or_else(corrupt)?),
-        };
+        self.name_into(&mut r.analyte)?;
+        self.name_into(&mut r.matrix)?;
+        self.name_into(&mut r.method)?;
+        self.name_into(&mut r.spec_citation)?;
+        self.name_into(&mut r.limits_row)?;
+        match (self.u32()?, &mut r.spec) {
+            (u32::MAX, spec) => *spec = None,
+            (i, Some(spec)) => keep_or_set(spec, self.names.get(i as usize).ok_or_else(corrupt)?),
+            (i, spec) => *spec = Some(self.names.get(i as usize).cloned().ok_or_else(corrupt)?),
+        }
         let days = i32::from_le_bytes(self.bytes()?);
         r.analyzed_on = NaiveDate::from_num_days_from_ce_opt(days).ok_or_else(corrupt)?;
         r.unit = self.pick(&Unit::ALL)?;

@@ -345,6 +345,10 @@ pub fn each_result_in<E: From<ReadError>>(
     let samples: Skip = (KIND, |cell| cell.eq_ignore_ascii_case(b"sample"));
     let skip = (pass == Pass::Qc).then_some(samples);
     let outcome = read_rows_skipping(file, reader, COLUMNS, skip, |r| {
+        // The row's key is noted in the filter after the row's own work (its
+        // block is being fetched meanwhile), and whatever that work found:
+        // a repeat is reported before a later problem on its own row.
+        let mut probe = None;
         let mut parse = || -> Result<Option<ResultRow>, ReadError> {
             let kind_text = r.required(KIND)?;
             let kind = Kind::parse(kind_text).ok_or_else(|| {
@@ -359,9 +363,9 @@ pub fn each_result_in<E: From<ReadError>>(
             }
             let lab_id = r.required(LAB_ID)?.to_string();
             let analyte = intern(r.required(ANALYTE)?);
-            if let Some(repeats) = &mut repeats {
+            if let Some(repeats) = &repeats {
                 repeat_key(&mut key, &lab_id, &analyte, kind);
-                repeats.note(&key, r.line);
+                probe = Some(repeats.probe(&key));
             }
             let reading_unit = r.unit(READING_UNIT)?;
             let dilution = r.opt_positive(DILUTION)?.unwrap_or(Decimal::ONE);
@@ -421,7 +425,7 @@ pub fn each_result_in<E: From<ReadError>>(
             };
             Ok(Some(row))
         };
-        match parse() {
+        let done = match parse() {
             Ok(Some(row)) => each(row).map_err(|e| {
                 failed_at = Some(r.line);
                 Halt::Each(e)
@@ -432,7 +436,11 @@ pub fn each_result_in<E: From<ReadError>>(
                 failed_at = Some(r.line);
                 Err(Halt::Read(e))
             }
+        };
+        if let (Some(repeats), Some(p)) = (&mut repeats, probe) {
+            repeats.note_probe(p, &key, r.line);
         }
+        done
     });
     // A repeat before (or on) the first failing row is the error to report,
     // as the file is read in order.

@@ -60,13 +60,29 @@ impl Repeats {
 
     /// Notes `key` (met on `line`); false when it is certainly new.
     pub fn note(&mut self, key: &str, line: u64) -> bool {
+        let p = self.probe(key);
+        self.note_probe(p, key, line)
+    }
+
+    /// Where `key` falls in the filter. Its block is asked of memory now,
+    /// so a caller with other work for the row can do that work before
+    /// `note_probe` and not wait for the block: the filter is far larger
+    /// than the caches, and each new key's block is a miss.
+    pub fn probe(&self, key: &str) -> Probe {
         let (h1, h2) = hashes(key.as_bytes());
-        // The stride's forced low bit would fix one bit of the first probe.
-        let mut h2 = h2 >> 1;
         // All probes in one 512-bit block (one cache line): a few more false
         // alarms than free probes, each cleared by the confirming scan, for
         // one memory fetch per key instead of six.
         let block = ((h1 & self.mask) / BLOCK) as usize * (BLOCK / 64) as usize;
+        prefetch(&self.bits[block]);
+        // The stride's forced low bit would fix one bit of the first probe.
+        Probe { block, h2: h2 >> 1 }
+    }
+
+    /// Notes the key `probe` was made from (met on `line`); false when it
+    /// is certainly new.
+    pub fn note_probe(&mut self, probe: Probe, key: &str, line: u64) -> bool {
+        let Probe { block, mut h2 } = probe;
         let mut all = true;
         for _ in 0..PROBES {
             let bit = h2 % BLOCK;
@@ -80,6 +96,27 @@ impl Repeats {
         }
         all
     }
+}
+
+/// A key's block in the filter and the bits it sets there.
+#[derive(Debug, Clone, Copy)]
+pub struct Probe {
+    block: usize,
+    h2: u64,
+}
+
+/// Asks for the cache line holding `word`, without waiting for it.
+#[inline(always)]
+fn prefetch(word: &u64) {
+    #[cfg(target_arch = "x86_64")]
+    // SAFETY: a prefetch is a hint to the cache: it reads nothing into the
+    // program, cannot fault, and the address is that of a live reference.
+    unsafe {
+        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
+        _mm_prefetch::<_MM_HINT_T0>((word as *const u64).cast::<i8>());
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = word;
 }
 
 /// Confirms the candidates against the file's keys in order: the first key
