@@ -7,6 +7,7 @@ use crate::read::{InForce, LimitRow, Loc, ResultRow, SpecLookup, SpecRow, Worksp
 use crate::units::{Dimension, Unit, convert};
 use chrono::{Datelike, NaiveDate};
 use rust_decimal::Decimal;
+use std::collections::HashMap;
 use std::sync::Arc;
 
 #[derive(Debug, thiserror::Error)]
@@ -152,37 +153,42 @@ fn unit_mismatch(row: &ResultRow, limits: &LimitRow, what: &str) -> ResolveError
     }
 }
 
-/// A direct-mapped memory of lookups by three shared names and a date: a
-/// batch repeats a few such combinations on every row. The names are kept
-/// (cloned), so an address stands for one name while the cache lives.
+/// A memory of lookups by three shared names and a date: a batch repeats a
+/// few such combinations on every row. Keyed by the names' addresses; the
+/// names are kept (cloned) beside the answer, so an address stands for one
+/// name while it is remembered.
 struct Memo<T> {
-    slots: Vec<Option<Remembered<T>>>,
+    map: HashMap<MemoKey, ([Arc<str>; 3], T), crate::fasthash::BuildWords>,
 }
 
-type Remembered<T> = ([Arc<str>; 3], NaiveDate, T);
+/// The three names' addresses and the day.
+type MemoKey = ([usize; 3], i32);
 
-const MEMO_SLOTS: usize = 64;
+/// Combinations remembered before the memory starts again: far more than a
+/// batch's analytes, matrices, methods and days make in practice, and a
+/// bound on memory whatever the file holds.
+const MEMO_MOST: usize = 4096;
 
 impl<T: Clone> Memo<T> {
     fn new() -> Memo<T> {
         Memo {
-            slots: vec![None; MEMO_SLOTS],
+            map: HashMap::default(),
         }
     }
 
     fn get_or(&mut self, names: [&Arc<str>; 3], date: NaiveDate, look: impl FnOnce() -> T) -> T {
-        let mut h = date.num_days_from_ce() as u64;
-        for n in names {
-            h = (h ^ Arc::as_ptr(n) as *const u8 as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15);
-        }
-        let slot = &mut self.slots[(h >> 58) as usize % MEMO_SLOTS];
-        if let Some((keys, d, value)) = slot {
-            if *d == date && keys.iter().zip(names).all(|(k, n)| Arc::ptr_eq(k, n)) {
-                return value.clone();
-            }
+        let key = (
+            names.map(|n| Arc::as_ptr(n) as *const u8 as usize),
+            date.num_days_from_ce(),
+        );
+        if let Some((_, value)) = self.map.get(&key) {
+            return value.clone();
         }
         let value = look();
-        *slot = Some((names.map(Arc::clone), date, value.clone()));
+        if self.map.len() >= MEMO_MOST {
+            self.map.clear();
+        }
+        self.map.insert(key, (names.map(Arc::clone), value.clone()));
         value
     }
 }

@@ -26,7 +26,7 @@ pub struct Spool {
     /// numbered in the order met; found again by address, since rows share
     /// one allocation per name.
     names: Vec<Arc<str>>,
-    by_address: HashMap<usize, u32, crate::fasthash::Build>,
+    by_address: HashMap<usize, u32, crate::fasthash::BuildWords>,
     /// The last name met in each of the six places of a row, by address:
     /// most rows repeat the row before.
     last: [(usize, u32); 6],

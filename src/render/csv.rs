@@ -46,9 +46,57 @@ pub fn neutralise(text: &str) -> std::borrow::Cow<'_, str> {
 
 /// What every row of one report's CSV repeats.
 struct Common<'a> {
-    report: &'a str,
-    revision: u32,
     qc_exception: Option<&'a str>,
+    /// The report and revision cells, written once.
+    prefix: Line,
+}
+
+impl Common<'_> {
+    fn new<'a>(report: &str, revision: u32, qc_exception: Option<&'a str>) -> Common<'a> {
+        let mut prefix = Line::default();
+        prefix.text(report);
+        prefix.unquoted(revision.to_string().as_bytes());
+        Common {
+            qc_exception,
+            prefix,
+        }
+    }
+}
+
+/// The cells of shared names (analyte, matrix, method, spec, limits row),
+/// by the name's address: a batch has a few dozen, met on every row, and
+/// rows share one allocation per name. Each name is kept, so its address
+/// stands for it while it is remembered.
+#[derive(Default)]
+struct Names {
+    cells: std::collections::HashMap<
+        usize,
+        (std::sync::Arc<str>, Vec<u8>),
+        crate::fasthash::BuildWords,
+    >,
+}
+
+/// Names remembered before the memory starts again: a bound on memory for a
+/// file of many distinct names.
+const NAMES_MOST: usize = 4096;
+
+impl Names {
+    fn cell(&mut self, line: &mut Line, name: &std::sync::Arc<str>) {
+        let address = std::sync::Arc::as_ptr(name) as *const u8 as usize;
+        if let Some((_, cell)) = self.cells.get(&address) {
+            line.unquoted(cell);
+            return;
+        }
+        let start = line.buf.len();
+        line.text(name);
+        // The comma before the cell is not the cell's.
+        let from = if line.cells > 1 { start + 1 } else { start };
+        if self.cells.len() >= NAMES_MOST {
+            self.cells.clear();
+        }
+        self.cells
+            .insert(address, (name.clone(), line.buf[from..].to_vec()));
+    }
 }
 
 /// One CSV line, built in place: cells joined by commas, quoted (quotes
@@ -147,22 +195,26 @@ impl Line {
     }
 }
 
-fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportRow) {
-    use std::fmt::Write as _;
+fn write_row(
+    line: &mut Line,
+    num: &mut String,
+    names: &mut Names,
+    report: &Common<'_>,
+    r: &ReportRow,
+) {
     line.start();
-    line.text(report.report);
-    num.clear();
-    let _ = write!(num, "{}", report.revision);
-    line.cell(num.as_bytes());
+    line.buf.extend_from_slice(&report.prefix.buf);
+    line.cells = report.prefix.cells;
     line.text(&r.lab_id);
     line.text(&r.client_id);
     line.text(&r.description);
-    line.text(&r.analyte);
-    line.text(&r.matrix);
-    line.text(&r.method);
+    names.cell(line, &r.analyte);
+    names.cell(line, &r.matrix);
+    names.cell(line, &r.method);
     num.clear();
     push_date(num, r.analyzed_on);
-    line.cell(num.as_bytes());
+    // Digits and '-' (a '+' before a five-digit year): never quoted.
+    line.unquoted(num.as_bytes());
     line.text(&r.reported);
     line.decimal(r.value, false);
     // Over range, the reading was above the highest standard: no number
@@ -174,7 +226,10 @@ fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportR
     line.decimal(Some(r.mdl), false);
     line.decimal(Some(r.loq), false);
     line.decimal(Some(r.dilution), true);
-    line.text(r.spec.as_deref().unwrap_or(""));
+    match &r.spec {
+        Some(spec) => names.cell(line, spec),
+        None => line.unquoted(b""),
+    }
     line.decimal(r.spec_limit, true);
     line.word(r.verdict.map(|v| v.name()).unwrap_or(""));
     if r.qualifiers.is_empty() {
@@ -182,7 +237,7 @@ fn write_row(line: &mut Line, num: &mut String, report: &Common<'_>, r: &ReportR
     } else {
         line.text(&qualifiers(report, r));
     }
-    line.text(&r.limits_row);
+    names.cell(line, &r.limits_row);
     for v in [r.uncertainty, r.ld, r.beta_at_limit] {
         line.decimal(v, false);
     }
@@ -260,6 +315,7 @@ pub struct Rows<'a, W: std::io::Write> {
     out: W,
     line: Line,
     num: String,
+    names: Names,
     common: Common<'a>,
 }
 
@@ -280,16 +336,19 @@ impl<'a, W: std::io::Write> Rows<'a, W> {
             out,
             line,
             num: String::new(),
-            common: Common {
-                report: &header.report,
-                revision: header.revision,
-                qc_exception,
-            },
+            names: Names::default(),
+            common: Common::new(&header.report, header.revision, qc_exception),
         })
     }
 
     pub fn row(&mut self, r: &ReportRow) -> std::io::Result<()> {
-        write_row(&mut self.line, &mut self.num, &self.common, r);
+        write_row(
+            &mut self.line,
+            &mut self.num,
+            &mut self.names,
+            &self.common,
+            r,
+        );
         self.out.write_all(&self.line.buf)
     }
 
