@@ -80,10 +80,28 @@ pub fn result_unit(row: &ResultRow) -> Unit {
     }
 }
 
+/// Quantities in sample terms stay below 7e28: rounding any of them to any
+/// number of figures then stays within a decimal's range (7.9e28 to one
+/// figure would be 8e28). Anything near it is far outside any real
+/// measurement, and is refused as an overflow.
+const LARGEST: Decimal = Decimal::from_parts(0x7000_0000, 0xb303_10a7, 0xe22e_a493, false, 0);
+
+/// `x` in sample terms, or None (overflow) from `LARGEST` on.
+fn within_range(x: Option<Option<Decimal>>) -> Option<Option<Decimal>> {
+    match x {
+        Some(Some(v)) if v.abs() >= LARGEST => None,
+        x => x,
+    }
+}
+
 /// Carries a reading-level quantity (reading, digest MDL, upper range) into
 /// the sample's unit: C = x × dilution × volume_ml / mass_g for a solid,
 /// C = x × dilution for a liquid.
 pub fn reading_to_sample(row: &ResultRow, x: Decimal, x_unit: Unit) -> Option<Option<Decimal>> {
+    within_range(scaled_reading(row, x, x_unit))
+}
+
+fn scaled_reading(row: &ResultRow, x: Decimal, x_unit: Unit) -> Option<Option<Decimal>> {
     let diluted = x.checked_mul(row.dilution)?;
     match (row.mass_g, row.volume_ml) {
         (Some(m), Some(v)) => {
@@ -127,7 +145,7 @@ fn fraction_to_sample(row: &ResultRow, limits: &LimitRow, x: Decimal) -> Option<
 
 fn limit_to_sample(row: &ResultRow, limits: &LimitRow, x: Decimal) -> Option<Option<Decimal>> {
     match limits.unit.dimension() {
-        Dimension::MassFraction => fraction_to_sample(row, limits, x),
+        Dimension::MassFraction => within_range(fraction_to_sample(row, limits, x)),
         Dimension::MassConcentration => reading_to_sample(row, x, limits.unit),
     }
 }
@@ -481,6 +499,30 @@ mod tests {
     fn overflow_is_reported_not_panicked() {
         let row = solid("79228162514264337593543950335", "10", "0.1", "50");
         assert_eq!(reading_to_sample(&row, row.reading, row.reading_unit), None);
+    }
+
+    #[test]
+    fn results_near_the_end_of_the_decimal_range_are_overflow() {
+        assert_eq!(LARGEST, d("70000000000000000000000000000"));
+        // A liquid at dilution 1 is its reading: the bound is exact.
+        let mut row = solid("1", "1", "1", "1");
+        (row.mass_g, row.volume_ml) = (None, None);
+        let at = |r: &str| reading_to_sample(&row, d(r), Unit::UgPerL);
+        assert_eq!(at("70000000000000000000000000000"), None);
+        assert_eq!(at("-70000000000000000000000000000"), None);
+        let below = d("69999999999999999999999999999");
+        assert_eq!(at("69999999999999999999999999999"), Some(Some(below)));
+        // A register limit in a mass fraction is bounded too.
+        let ws = workspace(
+            "analyte,matrix,method,unit,mdl,loq,effective_from\nPb,paint,6010D,mg/kg,1,2,2025-01-01\n",
+            SPECS,
+        );
+        let limits = &ws.register.rows[0];
+        let huge = d("70000000000000000000000000000");
+        assert_eq!(
+            limit_to_sample(&solid("1", "1", "0.5", "50"), limits, huge),
+            None
+        );
     }
 
     fn workspace(limits: &str, specs: &str) -> Workspace {

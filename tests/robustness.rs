@@ -29,11 +29,15 @@ fn number() -> impl Strategy<Value = String> {
 }
 
 fn workspace() -> Workspace {
+    workspace_at(3)
+}
+
+fn workspace_at(figures: u32) -> Workspace {
     Workspace {
         root: ".".into(),
         lab_text: String::new(),
         qc_text: None,
-        lab: Lab::parse("lab.toml", "name='L'\naddress='A'\nsignatory='S'\ndecision_rule='guarded'\n[qc]\nrequired=[]\n").unwrap(),
+        lab: Lab::parse("lab.toml", &format!("name='L'\naddress='A'\nsignatory='S'\ndecision_rule='guarded'\nsignificant_figures={figures}\n[qc]\nrequired=[]\n")).unwrap(),
         register: Register::parse(
             "limits.csv",
             b"analyte,matrix,method,unit,mdl,loq,effective_from,nominal_mass_g,nominal_volume_ml,upper_range,upper_range_unit\n\
@@ -48,6 +52,26 @@ fn workspace() -> Workspace {
         .unwrap(),
         register_sha256: String::new(),
         specs_sha256: String::new(),
+    }
+}
+
+fn batch(csv: String) -> Batch {
+    let manifest = "batch='B'\nreport='R'\nclient_name='c'\nclient_address='a'\nclient_contact='p'\nreceived_on=2026-11-10\nresults='r.csv'\n";
+    Batch {
+        dir: ".".into(),
+        manifest_file: "batch.toml".into(),
+        manifest_text: manifest.into(),
+        manifest: Manifest::parse("batch.toml", manifest).unwrap(),
+        results_file: "r.csv".into(),
+        results_bytes: csv.into_bytes(),
+        results_on_disk: None,
+    }
+}
+
+fn run() -> limen::RunInfo {
+    limen::RunInfo {
+        issued_at: chrono::DateTime::from_timestamp(0, 0).unwrap(),
+        tool_version: "t".into(),
     }
 }
 
@@ -66,18 +90,7 @@ proptest! {
              D1,duplicate,Pb,{matrix},6010D,{reading},ug/L,{dilution},{m},{v},2026-11-13,,,,S1\n\
              MS1,matrix-spike,Pb,{matrix},6010D,{reading},ug/L,{dilution},{m},{v},2026-11-13,,,{spike},S1\n"
         );
-        let manifest = "batch='B'\nreport='R'\nclient_name='c'\nclient_address='a'\nclient_contact='p'\nreceived_on=2026-11-10\nresults='r.csv'\n";
-        let batch = Batch {
-            dir: ".".into(),
-            manifest_file: "batch.toml".into(),
-            manifest_text: manifest.into(),
-            manifest: Manifest::parse("batch.toml", manifest).unwrap(),
-            results_file: "r.csv".into(),
-            results_bytes: csv.into_bytes(),
-            results_on_disk: None,
-        };
-        let run = limen::RunInfo { issued_at: chrono::DateTime::from_timestamp(0, 0).unwrap(), tool_version: "t".into() };
-        match limen::report::build(&workspace(), &batch, 0, &run) {
+        match limen::report::build(&workspace(), &batch(csv), 0, &run()) {
             Ok(report) => {
                 // Both files render for whatever came out.
                 let templates = limen::templates::Templates::load(None).unwrap();
@@ -105,4 +118,39 @@ fn the_generator_reaches_rendering() {
         "only {} cases rendered",
         RENDERED.load(Ordering::SeqCst)
     );
+}
+
+// A result at the top of the decimal range, rounded to few figures, would
+// round past the range (7.9e28 to one figure is 8e28): it is refused as
+// overflow on its row, at every number of figures a lab may choose, and a
+// result just below is evaluated.
+#[test]
+fn results_at_the_end_of_the_decimal_range_are_refused_not_rounded_over() {
+    let row = |reading: &str| {
+        format!(
+            "lab_id,kind,analyte,matrix,method,reading,reading_unit,dilution,analyzed_on\n\
+             S1,sample,Pb,paint,6010D,{reading},ug/L,1,2026-11-13\n"
+        )
+    };
+    let huge = [
+        "79228162514264337593543950335",
+        "75000000000000000000000000000",
+    ];
+    for figures in 1..=10 {
+        let ws = workspace_at(figures);
+        for reading in huge {
+            let e = limen::report::build(&ws, &batch(row(reading)), 0, &run())
+                .err()
+                .unwrap_or_else(|| panic!("{reading} at {figures} figures was reported"));
+            assert!(
+                e.to_string()
+                    .starts_with("r.csv:2: field `reading`: arithmetic overflow"),
+                "{e}"
+            );
+        }
+        let below = row("69999999999999999999999999999");
+        let report = limen::report::build(&ws, &batch(below), 0, &run())
+            .unwrap_or_else(|e| panic!("{figures} figures: {e}"));
+        assert_eq!(report.rows.len(), 1);
+    }
 }
