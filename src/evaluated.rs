@@ -8,7 +8,7 @@ use crate::resolve::ResolveError;
 use crate::units::Unit;
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
-use std::sync::Arc;
+use std::rc::Rc;
 
 #[derive(Debug, thiserror::Error)]
 pub enum EvalError {
@@ -55,9 +55,9 @@ pub struct ReportRow {
     pub lab_id: String,
     pub client_id: String,
     pub description: String,
-    pub analyte: Arc<str>,
-    pub matrix: Arc<str>,
-    pub method: Arc<str>,
+    pub analyte: Rc<str>,
+    pub matrix: Rc<str>,
+    pub method: Rc<str>,
     pub analyzed_on: NaiveDate,
     /// The text a certificate prints: "< 0.600", "ND", "25.0", "> 2500".
     pub reported: String,
@@ -71,9 +71,9 @@ pub struct ReportRow {
     pub mdl_unrounded: Decimal,
     pub loq_unrounded: Decimal,
     pub dilution: Decimal,
-    pub spec: Option<Arc<str>>,
+    pub spec: Option<Rc<str>>,
     pub spec_limit: Option<Decimal>,
-    pub spec_citation: Arc<str>,
+    pub spec_citation: Rc<str>,
     pub verdict: Option<Verdict>,
     pub uncertainty_pct: Option<Decimal>,
     /// The expanded uncertainty U (k = 2) as printed, in `unit`: for a
@@ -90,5 +90,5 @@ pub struct ReportRow {
     pub weak_pass: bool,
     pub qualifiers: Vec<String>,
     /// The register row used: study id, else file:line.
-    pub limits_row: Arc<str>,
+    pub limits_row: Rc<str>,
 }

@@ -21,7 +21,7 @@ pub enum ProblemKind {
 pub struct Problem {
     pub at: Loc,
     pub lab_id: String,
-    pub analyte: std::sync::Arc<str>,
+    pub analyte: std::rc::Rc<str>,
     pub kind: ProblemKind,
     pub message: String,
     pub hint: String,

@@ -12,7 +12,7 @@ use crate::resolve::{self, Resolution};
 use crate::units::{Dimension, Unit, convert};
 use rust_decimal::Decimal;
 use std::collections::HashMap;
-use std::sync::Arc;
+use std::rc::Rc;
 
 pub const BLANK_AFFECTED: &str = "blank-affected";
 pub const MATRIX_EFFECT: &str = "matrix-effect";
@@ -42,8 +42,8 @@ impl Outcome {
 #[derive(Debug, Clone, PartialEq)]
 pub struct QcCheck {
     pub check: &'static str,
-    pub analyte: Arc<str>,
-    pub method: Arc<str>,
+    pub analyte: Rc<str>,
+    pub method: Rc<str>,
     /// The rows the check uses, e.g. "MS-1 on P01".
     pub rows: String,
     /// The number judged, with its unit or %.
@@ -225,8 +225,8 @@ struct SpikePair {
 /// A check whose failure qualifies one parent sample.
 struct ParentCheck<'a> {
     check: &'static str,
-    analyte: &'a Arc<str>,
-    method: &'a Arc<str>,
+    analyte: &'a Rc<str>,
+    method: &'a Rc<str>,
     rows: String,
     value: String,
     window: String,
@@ -244,8 +244,8 @@ pub struct QcResult {
 struct Parent {
     index: usize,
     lab_id: String,
-    analyte: Arc<str>,
-    method: Arc<str>,
+    analyte: Rc<str>,
+    method: Rc<str>,
     unit: Unit,
     value: Decimal,
     loq: Decimal,
@@ -255,8 +255,8 @@ struct Parent {
 /// The samples of one analyte and method (names compared without case).
 #[derive(Debug, Clone)]
 struct Group {
-    analyte: Arc<str>,
-    method: Arc<str>,
+    analyte: Rc<str>,
+    method: Rc<str>,
     lab_id: String,
     count: usize,
 }
@@ -271,7 +271,7 @@ struct BlankGroup {
 }
 
 /// A method blank's analyte, method and matrix, and what its samples add up to.
-type BlankKey = (Arc<str>, Arc<str>, Arc<str>, BlankGroup);
+type BlankKey = (Rc<str>, Rc<str>, Rc<str>, BlankGroup);
 
 /// What the QC rules need of the client results, gathered in one pass over
 /// them, so the rules never hold the results themselves: group counts, the
@@ -390,8 +390,8 @@ impl Gather {
 }
 
 /// Interned names are usually the same allocation: skip the comparison then.
-fn same_name(a: &Arc<str>, b: &Arc<str>) -> bool {
-    Arc::ptr_eq(a, b) || same(a, b)
+fn same_name(a: &Rc<str>, b: &Rc<str>) -> bool {
+    Rc::ptr_eq(a, b) || same(a, b)
 }
 
 /// What a failed check does to the client results, applied to each as it
@@ -401,17 +401,17 @@ enum Rule {
     /// A method blank: detected results below `ceiling` are qualified.
     Blank {
         check: usize,
-        analyte: Arc<str>,
-        method: Arc<str>,
-        matrix: Arc<str>,
+        analyte: Rc<str>,
+        method: Rc<str>,
+        matrix: Rc<str>,
         ceiling: Decimal,
         factor: Decimal,
     },
     /// Every result of the analyte and method is held (LCS, required QC).
     Group {
         check: usize,
-        analyte: Arc<str>,
-        method: Arc<str>,
+        analyte: Rc<str>,
+        method: Rc<str>,
     },
     /// One parent sample is qualified.
     Parent {
@@ -423,8 +423,8 @@ enum Rule {
     Bracket {
         check: usize,
         problem: usize,
-        analyte: Arc<str>,
-        method: Arc<str>,
+        analyte: Rc<str>,
+        method: Rc<str>,
         after_pass: Option<(chrono::NaiveDate, u64)>,
         before_pass: Option<(chrono::NaiveDate, u64)>,
     },

@@ -12,7 +12,7 @@ use crate::read::{
 };
 use crate::resolve::{self, Resolution};
 use chrono::{DateTime, NaiveDate, Utc};
-use std::sync::Arc;
+use std::rc::Rc;
 
 /// What varies between runs, passed in so outputs are reproducible.
 #[derive(Debug, Clone)]
@@ -237,7 +237,7 @@ fn evaluate_into<'a>(
     let mut limits_used: std::collections::BTreeMap<u64, crate::read::LimitRow> =
         Default::default();
     let mut specs_used: std::collections::BTreeMap<u64, crate::read::SpecRow> = Default::default();
-    let mut methods: Vec<Arc<str>> = Vec::new();
+    let mut methods: Vec<Rc<str>> = Vec::new();
     let mut ld_factors: Vec<(u32, Option<f64>)> = Vec::new();
     let mut read = 0u64;
     let mut lookups = resolve::Lookups::default();
@@ -434,7 +434,7 @@ fn classify_row(
             .spec
             .as_ref()
             .map(|s| s.row.citation.clone())
-            .unwrap_or_else(|| Arc::from("")),
+            .unwrap_or_else(|| Rc::from("")),
         verdict,
         uncertainty_pct: row.uncertainty_pct,
         uncertainty,
@@ -512,7 +512,7 @@ fn over_range_problem(row: &ResultRow, r: &resolve::Resolved<'_>) -> Problem {
 /// from lab.toml.
 fn methods_used(
     lab_methods: &std::collections::BTreeMap<String, String>,
-    used: &[Arc<str>],
+    used: &[Rc<str>],
 ) -> Vec<(String, String)> {
     used.iter()
         .map(|m| {

@@ -8,7 +8,7 @@ use crate::units::{Dimension, Unit, convert};
 use chrono::{Datelike, NaiveDate};
 use rust_decimal::Decimal;
 use std::collections::HashMap;
-use std::sync::Arc;
+use std::rc::Rc;
 
 #[derive(Debug, thiserror::Error)]
 pub enum ResolveError {
@@ -176,7 +176,7 @@ fn unit_mismatch(row: &ResultRow, limits: &LimitRow, what: &str) -> ResolveError
 /// names are kept (cloned) beside the answer, so an address stands for one
 /// name while it is remembered.
 struct Memo<T> {
-    map: HashMap<MemoKey, ([Arc<str>; 3], T), crate::fasthash::BuildWords>,
+    map: HashMap<MemoKey, ([Rc<str>; 3], T), crate::fasthash::BuildWords>,
 }
 
 /// The three names' addresses and the day.
@@ -194,9 +194,9 @@ impl<T: Clone> Memo<T> {
         }
     }
 
-    fn get_or(&mut self, names: [&Arc<str>; 3], date: NaiveDate, look: impl FnOnce() -> T) -> T {
+    fn get_or(&mut self, names: [&Rc<str>; 3], date: NaiveDate, look: impl FnOnce() -> T) -> T {
         let key = (
-            names.map(|n| Arc::as_ptr(n) as *const u8 as usize),
+            names.map(|n| Rc::as_ptr(n) as *const u8 as usize),
             date.num_days_from_ce(),
         );
         if let Some((_, value)) = self.map.get(&key) {
@@ -206,7 +206,7 @@ impl<T: Clone> Memo<T> {
         if self.map.len() >= MEMO_MOST {
             self.map.clear();
         }
-        self.map.insert(key, (names.map(Arc::clone), value.clone()));
+        self.map.insert(key, (names.map(Rc::clone), value.clone()));
         value
     }
 }
@@ -353,7 +353,7 @@ fn upper_range(
 fn spec_in_force<'w>(
     row: &ResultRow,
     ws: &'w Workspace,
-    name: &Arc<str>,
+    name: &Rc<str>,
     unit: Unit,
     memo: &mut Memo<SpecLookup<'w>>,
 ) -> Result<Result<ResolvedSpec<'w>, Problem>, ResolveError> {

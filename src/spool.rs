@@ -10,7 +10,7 @@ use chrono::{Datelike, NaiveDate};
 use rust_decimal::Decimal;
 use std::collections::HashMap;
 use std::io::{BufReader, Read, Seek, Write};
-use std::sync::Arc;
+use std::rc::Rc;
 
 /// Encoded bytes held before they go to the file.
 const IN_MEMORY: usize = 4 << 20;
@@ -25,7 +25,7 @@ pub struct Spool {
     /// Shared names (analyte, matrix, method, spec, citation, limits row),
     /// numbered in the order met; found again by address, since rows share
     /// one allocation per name.
-    names: Vec<Arc<str>>,
+    names: Vec<Rc<str>>,
     by_address: HashMap<usize, u32, crate::fasthash::BuildWords>,
     /// The last name met in each of the six places of a row, by address:
     /// most rows repeat the row before.
@@ -133,8 +133,8 @@ impl Spool {
         Ok(())
     }
 
-    fn name(&mut self, place: usize, s: &Arc<str>) -> u32 {
-        let address = Arc::as_ptr(s) as *const u8 as usize;
+    fn name(&mut self, place: usize, s: &Rc<str>) -> u32 {
+        let address = Rc::as_ptr(s) as *const u8 as usize;
         // A kept name's address is never 0 and never reused (see below).
         if self.last[place].0 == address {
             return self.last[place].1;
@@ -144,7 +144,7 @@ impl Spool {
         i
     }
 
-    fn name_by_address(&mut self, s: &Arc<str>, address: usize) -> u32 {
+    fn name_by_address(&mut self, s: &Rc<str>, address: usize) -> u32 {
         if let Some(&i) = self.by_address.get(&address) {
             return i;
         }
@@ -306,8 +306,8 @@ fn put_decimal(b: &mut Vec<u8>, d: Decimal) {
     b.extend_from_slice(&mantissa[..n]);
 }
 
-fn keep_or_set(slot: &mut Arc<str>, name: &Arc<str>) {
-    if !Arc::ptr_eq(slot, name) {
+fn keep_or_set(slot: &mut Rc<str>, name: &Rc<str>) {
+    if !Rc::ptr_eq(slot, name) {
         *slot = name.clone();
     }
 }
@@ -315,7 +315,7 @@ fn keep_or_set(slot: &mut Arc<str>, name: &Arc<str>) {
 struct Decoder<'a> {
     b: &'a [u8],
     at: usize,
-    names: &'a [Arc<str>],
+    names: &'a [Rc<str>],
 }
 
 impl Decoder<'_> {
@@ -350,7 +350,7 @@ impl Decoder<'_> {
 
     /// The next name into `slot`, which usually holds it already (from the
     /// row before): then it is left as it is, with no count to change.
-    fn name_into(&mut self, slot: &mut Arc<str>) -> Result<(), EvalError> {
+    fn name_into(&mut self, slot: &mut Rc<str>) -> Result<(), EvalError> {
         let i = self.u32()?;
         keep_or_set(slot, self.names.get(i as usize).ok_or_else(corrupt)?);
         Ok(())
@@ -388,9 +388,9 @@ impl Decoder<'_> {
             lab_id: String::new(),
             client_id: String::new(),
             description: String::new(),
-            analyte: Arc::from(""),
-            matrix: Arc::from(""),
-            method: Arc::from(""),
+            analyte: Rc::from(""),
+            matrix: Rc::from(""),
+            method: Rc::from(""),
             analyzed_on: NaiveDate::MIN,
             reported: String::new(),
             value: None,
@@ -404,7 +404,7 @@ impl Decoder<'_> {
             dilution: Decimal::ZERO,
             spec: None,
             spec_limit: None,
-            spec_citation: Arc::from(""),
+            spec_citation: Rc::from(""),
             verdict: None,
             uncertainty_pct: None,
             uncertainty: None,
@@ -412,7 +412,7 @@ impl Decoder<'_> {
             beta_at_limit: None,
             weak_pass: false,
             qualifiers: Vec::new(),
-            limits_row: Arc::from(""),
+            limits_row: Rc::from(""),
         };
         self.fill(&mut r)?;
         Ok(r)
@@ -475,7 +475,7 @@ mod tests {
         Decimal::from_str(s).unwrap()
     }
 
-    fn row(i: u64, names: &[Arc<str>]) -> ReportRow {
+    fn row(i: u64, names: &[Rc<str>]) -> ReportRow {
         ReportRow {
             line: i + 2,
             lab_id: format!("L{i}"),
@@ -517,7 +517,7 @@ mod tests {
         }
     }
 
-    fn names() -> Vec<Arc<str>> {
+    fn names() -> Vec<Rc<str>> {
         [
             "Pb",
             "Cd",
@@ -529,7 +529,7 @@ mod tests {
             "limits.csv:7",
         ]
         .into_iter()
-        .map(Arc::from)
+        .map(Rc::from)
         .collect()
     }
 
@@ -634,7 +634,7 @@ mod tests {
         spool.push(&row(1, &names)).unwrap();
         spool
             .replay(|r| {
-                assert!(Arc::ptr_eq(&r.analyte, &names[1]));
+                assert!(Rc::ptr_eq(&r.analyte, &names[1]));
                 Ok::<(), EvalError>(())
             })
             .unwrap();

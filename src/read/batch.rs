@@ -10,7 +10,7 @@ use rust_decimal::Decimal;
 use serde::Deserialize;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
-use std::sync::Arc;
+use std::rc::Rc;
 
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -130,22 +130,22 @@ const PARENT: usize = 16;
 /// One instrument result as the analyst exported it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ResultRow {
-    pub file: Arc<str>,
+    pub file: Rc<str>,
     pub line: u64,
     pub lab_id: String,
     pub client_id: String,
     pub description: String,
     pub kind: Kind,
-    pub analyte: Arc<str>,
-    pub matrix: Arc<str>,
-    pub method: Arc<str>,
+    pub analyte: Rc<str>,
+    pub matrix: Rc<str>,
+    pub method: Rc<str>,
     pub reading: Decimal,
     pub reading_unit: Unit,
     pub dilution: Decimal,
     pub mass_g: Option<Decimal>,
     pub volume_ml: Option<Decimal>,
     pub analyzed_on: NaiveDate,
-    pub spec: Option<Arc<str>>,
+    pub spec: Option<Rc<str>>,
     pub uncertainty_pct: Option<Decimal>,
     pub spike_added: Option<Decimal>,
     pub parent_id: Option<String>,
@@ -325,15 +325,15 @@ pub fn each_result_in<E: From<ReadError>>(
     pass: Pass,
     mut each: impl FnMut(ResultRow) -> Result<(), E>,
 ) -> Result<(), E> {
-    let shared: Arc<str> = Arc::from(file);
+    let shared: Rc<str> = Rc::from(file);
     let mut repeats = (pass == Pass::Check).then(|| super::repeats::Repeats::for_len(source.len()));
     // Analytes, matrices, methods and specs repeat on every row: share them.
-    let mut names: HashMap<String, Arc<str>, crate::fasthash::Build> = HashMap::default();
-    let mut intern = move |s: &str| -> Arc<str> {
+    let mut names: HashMap<String, Rc<str>, crate::fasthash::Build> = HashMap::default();
+    let mut intern = move |s: &str| -> Rc<str> {
         if let Some(a) = names.get(s) {
             return a.clone();
         }
-        let a: Arc<str> = Arc::from(s);
+        let a: Rc<str> = Rc::from(s);
         names.insert(s.to_string(), a.clone());
         a
     };

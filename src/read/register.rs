@@ -63,7 +63,7 @@ pub struct LimitRow {
     /// spikes, when the register keeps them: what detection power needs.
     pub spike_sd: Option<(Decimal, u32)>,
     /// How a report names this row: its study id, else file:line.
-    pub reference: std::sync::Arc<str>,
+    pub reference: std::rc::Rc<str>,
 }
 
 /// Case-insensitive key so `Pb` and `pb` in different files agree.

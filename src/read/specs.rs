@@ -7,7 +7,7 @@ use crate::units::Unit;
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
 use std::collections::HashMap;
-use std::sync::Arc;
+use std::rc::Rc;
 
 pub const COLUMNS: &[Col] = &[
     req("spec"),
@@ -23,12 +23,12 @@ pub const COLUMNS: &[Col] = &[
 pub struct SpecRow {
     pub file: String,
     pub line: u64,
-    pub spec: Arc<str>,
+    pub spec: Rc<str>,
     pub analyte: String,
     pub matrix: String,
     pub limit: Decimal,
     pub unit: Unit,
-    pub citation: Arc<str>,
+    pub citation: Rc<str>,
     pub effective_from: NaiveDate,
 }
 

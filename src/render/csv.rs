@@ -69,11 +69,8 @@ impl Common<'_> {
 /// stands for it while it is remembered.
 #[derive(Default)]
 struct Names {
-    cells: std::collections::HashMap<
-        usize,
-        (std::sync::Arc<str>, Vec<u8>),
-        crate::fasthash::BuildWords,
-    >,
+    cells:
+        std::collections::HashMap<usize, (std::rc::Rc<str>, Vec<u8>), crate::fasthash::BuildWords>,
 }
 
 /// Names remembered before the memory starts again: a bound on memory for a
@@ -81,8 +78,8 @@ struct Names {
 const NAMES_MOST: usize = 4096;
 
 impl Names {
-    fn cell(&mut self, line: &mut Line, name: &std::sync::Arc<str>) {
-        let address = std::sync::Arc::as_ptr(name) as *const u8 as usize;
+    fn cell(&mut self, line: &mut Line, name: &std::rc::Rc<str>) {
+        let address = std::rc::Rc::as_ptr(name) as *const u8 as usize;
         if let Some((_, cell)) = self.cells.get(&address) {
             line.unquoted(cell);
             return;
