@@ -30,6 +30,11 @@ pub struct Spool {
     /// The last name met in each of the six places of a row, by address:
     /// most rows repeat the row before.
     last: [(usize, u32); 6],
+    /// The row before's line and its lab id, client id and description:
+    /// the rows of one sample (one per analyte) repeat these, and a repeat
+    /// is written as a flag.
+    previous_line: u64,
+    previous: [String; 3],
 }
 
 impl Spool {
@@ -52,6 +57,8 @@ impl Spool {
             names: Vec::new(),
             by_address: HashMap::default(),
             last: [(0, 0); 6],
+            previous_line: 0,
+            previous: Default::default(),
         }
     }
 
@@ -89,7 +96,9 @@ impl Spool {
 
     /// Every row pushed, in order; may be run again. The row handed on is
     /// one value refilled each time (its strings keep their room), so
-    /// reading back allocates next to nothing.
+    /// reading back allocates next to nothing. `each` may change its
+    /// qualifiers only: what repeats from the row before is not written
+    /// again, but left as it was.
     pub fn replay<E: From<EvalError>>(
         &mut self,
         mut each: impl FnMut(&mut ReportRow) -> Result<(), E>,
@@ -162,19 +171,32 @@ impl Spool {
             self.name(2, &r.method),
             self.name(3, &r.spec_citation),
             self.name(4, &r.limits_row),
+            // 0 for none, else the name's number + 1.
             match &r.spec {
-                Some(s) => self.name(5, s),
-                None => u32::MAX,
+                Some(s) => self.name(5, s) + 1,
+                None => 0,
             },
         ];
         let b = &mut self.held;
-        b.extend_from_slice(&r.line.to_le_bytes());
-        for s in [&r.lab_id, &r.client_id, &r.description, &r.reported] {
-            b.extend_from_slice(&(s.len() as u32).to_le_bytes());
-            b.extend_from_slice(s.as_bytes());
+        put_varint(b, r.line.wrapping_sub(self.previous_line));
+        self.previous_line = r.line;
+        let texts = [&r.lab_id, &r.client_id, &r.description];
+        let mut same = 0u8;
+        for (k, (text, previous)) in texts.iter().zip(&self.previous).enumerate() {
+            if **text == *previous {
+                same |= 1 << k;
+            }
         }
+        b.push(same);
+        for (k, (text, previous)) in texts.into_iter().zip(&mut self.previous).enumerate() {
+            if same & (1 << k) == 0 {
+                put_text(b, text);
+                previous.clone_from(text);
+            }
+        }
+        put_text(b, &r.reported);
         for n in names {
-            b.extend_from_slice(&n.to_le_bytes());
+            put_varint(b, n as u64);
         }
         b.extend_from_slice(&r.analyzed_on.num_days_from_ce().to_le_bytes());
         b.push(index_of(&Unit::ALL, r.unit));
@@ -209,8 +231,7 @@ impl Spool {
         }
         b.push(r.qualifiers.len() as u8);
         for q in &r.qualifiers {
-            b.extend_from_slice(&(q.len() as u32).to_le_bytes());
-            b.extend_from_slice(q.as_bytes());
+            put_text(b, q);
         }
     }
 }
@@ -293,6 +314,22 @@ fn scratch() -> std::io::Result<std::fs::File> {
     ))
 }
 
+/// A number in 7-bit groups, low first, the high bit set on all but the
+/// last: line steps, lengths and name numbers mostly take one byte.
+fn put_varint(b: &mut Vec<u8>, mut x: u64) {
+    while x >= 0x80 {
+        b.push(x as u8 | 0x80);
+        x >>= 7;
+    }
+    b.push(x as u8);
+}
+
+/// A string: its length, then its bytes.
+fn put_text(b: &mut Vec<u8>, s: &str) {
+    put_varint(b, s.len() as u64);
+    b.extend_from_slice(s.as_bytes());
+}
+
 /// A decimal in as few bytes as its mantissa needs: scale and sign, the
 /// mantissa's length, then the mantissa (little-endian). A rounded limit
 /// takes 4 bytes rather than 16; `Decoder::decimal` reads it back exactly
@@ -318,7 +355,7 @@ struct Decoder<'a> {
     names: &'a [Rc<str>],
 }
 
-impl Decoder<'_> {
+impl<'a> Decoder<'a> {
     fn bytes<const N: usize>(&mut self) -> Result<[u8; N], EvalError> {
         let x = take(self.b, self.at)?;
         self.at += N;
@@ -329,12 +366,20 @@ impl Decoder<'_> {
         Ok(self.bytes::<1>()?[0])
     }
 
-    fn u32(&mut self) -> Result<u32, EvalError> {
-        Ok(u32::from_le_bytes(self.bytes()?))
+    fn varint(&mut self) -> Result<u64, EvalError> {
+        let mut x = 0u64;
+        for shift in (0..64).step_by(7) {
+            let byte = self.u8()?;
+            x |= ((byte & 0x7f) as u64) << shift;
+            if byte & 0x80 == 0 {
+                return Ok(x);
+            }
+        }
+        Err(corrupt())
     }
 
     fn string_into(&mut self, out: &mut String) -> Result<(), EvalError> {
-        let len = self.u32()? as usize;
+        let len = usize::try_from(self.varint()?).map_err(|_| corrupt())?;
         let s = self.b.get(self.at..self.at + len).ok_or_else(corrupt)?;
         self.at += len;
         out.clear();
@@ -351,9 +396,16 @@ impl Decoder<'_> {
     /// The next name into `slot`, which usually holds it already (from the
     /// row before): then it is left as it is, with no count to change.
     fn name_into(&mut self, slot: &mut Rc<str>) -> Result<(), EvalError> {
-        let i = self.u32()?;
-        keep_or_set(slot, self.names.get(i as usize).ok_or_else(corrupt)?);
+        let i = self.varint()?;
+        keep_or_set(slot, self.name_at(i)?);
         Ok(())
+    }
+
+    fn name_at(&self, i: u64) -> Result<&'a Rc<str>, EvalError> {
+        usize::try_from(i)
+            .ok()
+            .and_then(|i| self.names.get(i))
+            .ok_or_else(corrupt)
     }
 
     fn decimal(&mut self) -> Result<Decimal, EvalError> {
@@ -418,22 +470,29 @@ impl Decoder<'_> {
         Ok(r)
     }
 
-    /// Overwrites every field of `r` with the next row's.
+    /// Overwrites every field of `r` with the next row's; `r` holds the
+    /// row before (or is new, as the encoder's first "row before" is).
     fn fill(mut self, r: &mut ReportRow) -> Result<(), EvalError> {
-        r.line = u64::from_le_bytes(self.bytes()?);
-        self.string_into(&mut r.lab_id)?;
-        self.string_into(&mut r.client_id)?;
-        self.string_into(&mut r.description)?;
+        r.line = r.line.wrapping_add(self.varint()?);
+        let same = self.u8()?;
+        for (k, text) in [&mut r.lab_id, &mut r.client_id, &mut r.description]
+            .into_iter()
+            .enumerate()
+        {
+            if same & (1 << k) == 0 {
+                self.string_into(text)?;
+            }
+        }
         self.string_into(&mut r.reported)?;
         self.name_into(&mut r.analyte)?;
         self.name_into(&mut r.matrix)?;
         self.name_into(&mut r.method)?;
         self.name_into(&mut r.spec_citation)?;
         self.name_into(&mut r.limits_row)?;
-        match (self.u32()?, &mut r.spec) {
-            (u32::MAX, spec) => *spec = None,
-            (i, Some(spec)) => keep_or_set(spec, self.names.get(i as usize).ok_or_else(corrupt)?),
-            (i, spec) => *spec = Some(self.names.get(i as usize).cloned().ok_or_else(corrupt)?),
+        match (self.varint()?, &mut r.spec) {
+            (0, spec) => *spec = None,
+            (i, Some(spec)) => keep_or_set(spec, self.name_at(i - 1)?),
+            (i, spec) => *spec = Some(self.name_at(i - 1)?.clone()),
         }
         let days = i32::from_le_bytes(self.bytes()?);
         r.analyzed_on = NaiveDate::from_num_days_from_ce_opt(days).ok_or_else(corrupt)?;
@@ -476,15 +535,17 @@ mod tests {
     }
 
     fn row(i: u64, names: &[Rc<str>]) -> ReportRow {
+        // The rows of a sample repeat its ids (three rows here) and, less
+        // often, its description (two); lines step by one, sometimes more.
         ReportRow {
-            line: i + 2,
-            lab_id: format!("L{i}"),
-            client_id: if i % 3 == 0 {
+            line: i + 2 + (i / 7) * 300,
+            lab_id: format!("L{}", i / 3),
+            client_id: if i % 9 < 3 {
                 String::new()
             } else {
-                format!("C-{i}")
+                format!("C-{}", i / 3)
             },
-            description: format!("chip é {i}"),
+            description: format!("chip é {}", i / 2),
             analyte: names[(i % 2) as usize].clone(),
             matrix: names[2].clone(),
             method: names[3].clone(),
@@ -568,6 +629,40 @@ mod tests {
     }
 
     #[test]
+    fn varints_come_back_at_every_width_and_damage_is_an_error() {
+        let names = [];
+        let read = |b: &[u8]| {
+            let mut dec = Decoder {
+                b,
+                at: 0,
+                names: &names,
+            };
+            dec.varint().map(|x| (x, dec.at))
+        };
+        for x in [
+            0,
+            1,
+            127,
+            128,
+            300,
+            16_383,
+            16_384,
+            u32::MAX as u64,
+            u64::MAX,
+        ] {
+            let mut b = Vec::new();
+            put_varint(&mut b, x);
+            assert_eq!(read(&b).unwrap(), (x, b.len()), "{x}");
+        }
+        let mut b = Vec::new();
+        put_varint(&mut b, 300);
+        assert_eq!(b, [0xac, 0x02]);
+        // Cut short, or longer than a u64 can be.
+        assert!(read(&b[..1]).is_err());
+        assert!(read(&[0xff; 11]).is_err());
+    }
+
+    #[test]
     fn zeros_keep_their_scale_and_sign() {
         for d in [d("0"), d("0.000"), -d("0.0"), d("1.20"), d("-0.031")] {
             let back = round_trip(d);
@@ -580,7 +675,7 @@ mod tests {
     fn rows_come_back_as_pushed_from_memory_and_from_the_file() {
         let names = names();
         // Enough rows to pass the in-memory size several times.
-        let many = (IN_MEMORY / 150) as u64 * 3;
+        let many = (IN_MEMORY / 60) as u64 * 3;
         for (spool, n) in [(Spool::in_memory(), 500), (Spool::new(), many)] {
             let mut spool = spool;
             for i in 0..n {
@@ -604,7 +699,7 @@ mod tests {
     #[test]
     fn spills_only_past_the_memory_it_may_hold_and_counts_rows() {
         let names = names();
-        let many = (IN_MEMORY / 150) as u64 * 2;
+        let many = (IN_MEMORY / 60) as u64 * 2;
         let mut small = Spool::new();
         assert!(small.is_empty());
         for i in 0..500 {
