@@ -180,16 +180,14 @@ impl Spool {
         let b = &mut self.held;
         put_varint(b, r.line.wrapping_sub(self.previous_line));
         self.previous_line = r.line;
+        // A flag a text, set where it repeats the row before's.
+        let flags = b.len();
+        b.push(0);
         let texts = [&r.lab_id, &r.client_id, &r.description];
-        let mut same = 0u8;
-        for (k, (text, previous)) in texts.iter().zip(&self.previous).enumerate() {
-            if **text == *previous {
-                same |= 1 << k;
-            }
-        }
-        b.push(same);
         for (k, (text, previous)) in texts.into_iter().zip(&mut self.previous).enumerate() {
-            if same & (1 << k) == 0 {
+            if text == previous {
+                b[flags] |= 1 << k;
+            } else {
                 put_text(b, text);
                 previous.clone_from(text);
             }
