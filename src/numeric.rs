@@ -348,6 +348,32 @@ mod tests {
         }
     }
 
+    // The integer path does the rounding itself (None would hand it to the
+    // general path, with the same answers but a division each): to places,
+    // to tens and hundreds, and refuses only where the general path would
+    // round twice. Expected values by hand, half to even (ASTM E29).
+    #[test]
+    fn the_integer_path_rounds_to_places_tens_and_hundreds_itself() {
+        let cases = [
+            ("1234.5", -1, "1230"),
+            ("1235", -1, "1240"),
+            ("1245", -1, "1240"),
+            ("-2575.1", -2, "-2600"),
+            ("0.4", -1, "0"),
+            ("984.46", 0, "984"),
+            ("0.59871", 3, "0.599"),
+            ("2.5", 5, "2.50000"),
+        ];
+        for (x, places, want) in cases {
+            let got = round_small(d(x), places).unwrap_or_else(|| panic!("{x} at {places}"));
+            assert_eq!(got.to_string(), want, "{x} at {places}");
+        }
+        // 28 decimals and two more places rounded away: the general path
+        // would divide inexactly first, so the integer path declines.
+        let fine = Decimal::from_i128_with_scale(12_345, 28);
+        assert_eq!(round_small(fine, -2), None);
+    }
+
     // The seams of the two-halves split and the digit pairs, which random
     // mantissas almost never land on; the reference is Display.
     #[test]
