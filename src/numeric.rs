@@ -368,10 +368,21 @@ mod tests {
             let got = round_small(d(x), places).unwrap_or_else(|| panic!("{x} at {places}"));
             assert_eq!(got.to_string(), want, "{x} at {places}");
         }
-        // 28 decimals and two more places rounded away: the general path
-        // would divide inexactly first, so the integer path declines.
-        let fine = Decimal::from_i128_with_scale(12_345, 28);
-        assert_eq!(round_small(fine, -2), None);
+        // 27 decimals and one whole place: the general path divides exactly
+        // (scale 28), so the integer path rounds (1.23… to tens is 0).
+        let fine = Decimal::from_i128_with_scale(1_234_567_890_123_456_789_012_345_678, 27);
+        assert_eq!(
+            round_small(fine, -1).map(|x| x.to_string()),
+            Some("0".into())
+        );
+        // 28 decimals and one whole place: the general path divides to 28
+        // places first, and a tie made there rounds to even. Exactly,
+        // 5.0000000000000000000000000005 to tens is 10; the general path
+        // gives 0. The integer path declines, so both paths agree.
+        let tie = Decimal::from_i128_with_scale(50_000_000_000_000_000_000_000_000_005, 28);
+        assert_eq!(round_small(tie, -1), None);
+        assert_eq!(round_at(tie, -1), round_at_wide(tie, -1));
+        assert_eq!(round_at_wide(tie, -1).to_string(), "0");
     }
 
     // The seams of the two-halves split and the digit pairs, which random
