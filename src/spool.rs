@@ -720,6 +720,37 @@ mod tests {
         assert_eq!((large.len(), kept.len()), (many as usize, many as usize));
     }
 
+    // A sample's rows repeat its ids and description: each repeat costs its
+    // flag bit, not its bytes. Two rows alike but for those three texts
+    // differ in size by exactly the texts (a length byte and the bytes each).
+    #[test]
+    fn texts_repeated_from_the_row_before_are_not_written_again() {
+        let names = names();
+        let mut spool = Spool::in_memory();
+        let first = row(4, &names);
+        spool.push(&first).unwrap();
+        let before = spool.held.len();
+        spool.push(&first).unwrap();
+        let repeated = spool.held.len() - before;
+        let mut other = first.clone();
+        other.lab_id = "L-other".into();
+        other.client_id = "C-other".into();
+        other.description = "another chip".into();
+        let before = spool.held.len();
+        spool.push(&other).unwrap();
+        let new = spool.held.len() - before;
+        assert_eq!(new - repeated, (1 + 7) + (1 + 7) + (1 + 12));
+        // And each comes back as pushed.
+        let mut back = Vec::new();
+        spool
+            .replay(|r| {
+                back.push(r.clone());
+                Ok::<(), EvalError>(())
+            })
+            .unwrap();
+        assert_eq!(back, [first.clone(), first, other]);
+    }
+
     #[test]
     fn names_come_back_shared() {
         let names = names();
