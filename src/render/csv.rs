@@ -358,6 +358,34 @@ impl<'a, W: std::io::Write> Rows<'a, W> {
 mod tests {
     use super::*;
 
+    // A name's cell is made once and written again from memory, quoted and
+    // neutralised as `text` writes it; the memory has a bound.
+    #[test]
+    fn names_are_written_again_from_memory_up_to_a_bound() {
+        let mut names = Names::default();
+        let mut line = Line::default();
+        line.start();
+        line.unquoted(b"first");
+        let odd: Vec<std::rc::Rc<str>> = ["Pb", "a,b", "=cmd"].map(std::rc::Rc::from).into();
+        for n in odd.iter().chain(&odd) {
+            names.cell(&mut line, n);
+        }
+        assert_eq!(names.cells.len(), 3);
+        let once = "first,Pb,\"a,b\",'=cmd";
+        assert_eq!(
+            String::from_utf8(line.buf.clone()).unwrap(),
+            format!("{once},Pb,\"a,b\",'=cmd")
+        );
+        let many: Vec<std::rc::Rc<str>> = (0..NAMES_MOST + 10)
+            .map(|i| std::rc::Rc::from(format!("N{i}").as_str()))
+            .collect();
+        for n in &many {
+            names.cell(&mut line, n);
+            assert!(names.cells.len() <= NAMES_MOST);
+        }
+        assert!(names.cells.len() >= 10, "remembered again after the bound");
+    }
+
     // The reference is the csv crate's writer (RFC 4180 quoting).
     proptest::proptest! {
         #[test]
