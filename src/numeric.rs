@@ -178,7 +178,15 @@ pub fn round_sig_up(d: Decimal, sig: u32) -> Decimal {
     }
 }
 
-/// A decimal of an f64, with 15 significant digits (all an f64 holds).
+/// 7e28: below it the roundings here are total. Rounded to any number of
+/// figures, to even or up, a value stays within a decimal's range (7.9e28
+/// to one figure would be 8e28, and the rounding would overflow). Values
+/// computed from the lab's files are refused from here on, as far outside
+/// any real measurement.
+pub const LARGEST: Decimal = Decimal::from_parts(0x7000_0000, 0xb303_10a7, 0xe22e_a493, false, 0);
+
+/// A decimal of an f64, with 15 significant digits (all an f64 holds);
+/// None for a value that is not finite or not below `LARGEST`.
 pub fn decimal_of(x: f64) -> Option<Decimal> {
     if !x.is_finite() {
         return None;
@@ -186,6 +194,7 @@ pub fn decimal_of(x: f64) -> Option<Decimal> {
     Decimal::from_scientific(&format!("{x:.14e}"))
         .ok()
         .map(|d| d.normalize())
+        .filter(|d| d.abs() < LARGEST)
 }
 
 /// Plain text of an exact decimal without meaningless trailing zeros.
@@ -383,6 +392,33 @@ mod tests {
         assert_eq!(round_small(tie, -1), None);
         assert_eq!(round_at(tie, -1), round_at_wide(tie, -1));
         assert_eq!(round_at_wide(tie, -1).to_string(), "0");
+    }
+
+    // Below LARGEST no rounding overflows, at any number of figures; the
+    // f64 estimates (L_D, study limits) come in only below it.
+    #[test]
+    fn roundings_are_total_below_the_largest_value() {
+        assert_eq!(LARGEST, d("70000000000000000000000000000"));
+        let top = [
+            d("69999999999999999999999999999"),
+            d("6999999999999999999999999999.9"),
+            d("69500000000000000000000000000"),
+        ];
+        for x in top.into_iter().flat_map(|x| [x, -x]) {
+            for sig in 1..=10 {
+                let (even, up) = (round_sig(x, sig), round_sig_up(x, sig));
+                assert!(
+                    even.abs() <= d("70000000000000000000000000000"),
+                    "{x} {sig}"
+                );
+                assert!(up >= x, "{x} {sig}");
+            }
+        }
+        // Rounded up near the top of the range, 7.9225e28 would be 7.93e28.
+        assert_eq!(decimal_of(7.9225e28), None);
+        assert_eq!(decimal_of(7.0e28), None);
+        assert_eq!(decimal_of(-7.5e28), None);
+        assert_eq!(decimal_of(6.9e28), Some(d("69000000000000000000000000000")));
     }
 
     // The seams of the two-halves split and the digit pairs, which random

@@ -2,6 +2,7 @@
 //! analysis date and carry reading, MDL, LOQ, upper range and limit into the
 //! sample's own unit through its mass, volume and dilution.
 
+use crate::numeric::LARGEST;
 use crate::problem::{Problem, ProblemKind};
 use crate::read::{InForce, LimitRow, Loc, ResultRow, SpecLookup, SpecRow, Workspace};
 use crate::units::{Dimension, Unit, convert};
@@ -80,13 +81,8 @@ pub fn result_unit(row: &ResultRow) -> Unit {
     }
 }
 
-/// Quantities in sample terms stay below 7e28: rounding any of them to any
-/// number of figures then stays within a decimal's range (7.9e28 to one
-/// figure would be 8e28). Anything near it is far outside any real
-/// measurement, and is refused as an overflow.
-const LARGEST: Decimal = Decimal::from_parts(0x7000_0000, 0xb303_10a7, 0xe22e_a493, false, 0);
-
-/// `x` in sample terms, or None (overflow) from `LARGEST` on.
+/// `x` in sample terms, or None (overflow) from `LARGEST` on: below it every
+/// rounding of a result is total, and nothing near it is a measurement.
 fn within_range(x: Option<Option<Decimal>>) -> Option<Option<Decimal>> {
     match x {
         Some(Some(v)) if v.abs() >= LARGEST => None,
@@ -503,7 +499,6 @@ mod tests {
 
     #[test]
     fn results_near_the_end_of_the_decimal_range_are_overflow() {
-        assert_eq!(LARGEST, d("70000000000000000000000000000"));
         // A liquid at dilution 1 is its reading: the bound is exact.
         let mut row = solid("1", "1", "1", "1");
         (row.mass_g, row.volume_ml) = (None, None);
